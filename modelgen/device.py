@@ -1,0 +1,107 @@
+"""The device: plain SI numbers in numpy arrays, one element per device.
+
+A single device is arrays of length 1; a lot table is the same arrays,
+longer. Unset optional values are NaN (or inf for an ideal ohmic contact), so
+one code path serves both.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, fields
+
+import numpy as np
+
+
+@dataclass
+class Side:
+    """One quasi-neutral side of the junction (all arrays of shape (n,)).
+
+    Attributes
+    ----------
+    doping : dopant density [m^-3]; NaN when given as resistivity.
+    resistivity : [ohm m]; NaN when doping is given.
+    thickness : metallurgical junction to contact [m]; NaN when neutral_width given.
+    neutral_width : quasi-neutral width [m]; NaN when thickness given.
+    lifetime : minority-carrier lifetime [s]; NaN = not given.
+    diffusion_length : [m]; NaN = not given.
+    minority_mobility, majority_mobility : [m^2/(V s)]; NaN = use the model.
+    surface_recombination : contact recombination velocity [m/s]; inf = ohmic.
+    """
+
+    doping: np.ndarray
+    resistivity: np.ndarray
+    thickness: np.ndarray
+    neutral_width: np.ndarray
+    lifetime: np.ndarray
+    diffusion_length: np.ndarray
+    minority_mobility: np.ndarray
+    majority_mobility: np.ndarray
+    surface_recombination: np.ndarray
+
+
+@dataclass
+class Device:
+    """A table of pn-junction diodes in SI units.
+
+    Attributes
+    ----------
+    name : model names, one per device.
+    material : material names (keys of :data:`modelgen.materials.MATERIALS`).
+    temperature : nominal temperature, the card's TNOM [K].
+    area : junction area [m^2].
+    perimeter : junction perimeter [m] (0 = none).
+    junction_depth : depth of the junction for the sidewall [m] (0 = none).
+    reference_bias : bias fixing the depletion edges for the neutral widths [V].
+    contact_resistance : added to RS [ohm].
+    linear : True for a linearly graded junction.
+    grading : impurity gradient [m^-4] (NaN for abrupt).
+    relative_permittivity : [-].
+    ni : intrinsic density override at the nominal temperature [m^-3] (NaN = model).
+    bandgap : band-gap override at the nominal temperature [eV] (NaN = model).
+    fc : SPICE FC [-].
+    breakdown_current : current at which BV is quoted, SPICE IBV [A].
+    recombination_lifetime : lifetime for the depletion-region current [s] (NaN = lighter side's).
+    p, n : the two sides.
+    source : where each device came from (file name), for messages and headers.
+    """
+
+    name: tuple
+    material: tuple
+    temperature: np.ndarray
+    area: np.ndarray
+    perimeter: np.ndarray
+    junction_depth: np.ndarray
+    reference_bias: np.ndarray
+    contact_resistance: np.ndarray
+    linear: np.ndarray
+    grading: np.ndarray
+    relative_permittivity: np.ndarray
+    ni: np.ndarray
+    bandgap: np.ndarray
+    fc: np.ndarray
+    breakdown_current: np.ndarray
+    recombination_lifetime: np.ndarray
+    p: Side
+    n: Side
+    source: tuple = field(default=())
+
+    def __len__(self):
+        return len(self.name)
+
+    def row(self, i):
+        """Device ``i`` alone, as a Device of length 1."""
+        sl = slice(i, i + 1)
+
+        def take(obj, cls):
+            kw = {}
+            for f in fields(cls):
+                v = getattr(obj, f.name)
+                if isinstance(v, Side):
+                    kw[f.name] = take(v, Side)
+                elif isinstance(v, tuple):
+                    kw[f.name] = v[sl] if len(v) else v
+                else:
+                    kw[f.name] = v[sl]
+            return cls(**kw)
+
+        return take(self, Device)

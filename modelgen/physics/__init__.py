@@ -1,0 +1,1 @@
+"""Device physics over numpy arrays, SI units."""

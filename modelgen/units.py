@@ -1,0 +1,128 @@
+"""The one pint registry, and text-to-SI conversion at the input boundary.
+
+pint is used only here, where text becomes numbers. Parse once per value
+(or once per table column); the physics never sees a pint quantity.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+
+import pint
+
+from .errors import InputError
+
+ureg = pint.UnitRegistry()
+
+#: Kinds of quantity: SI unit the physics uses, and an example for messages.
+KINDS = {
+    "concentration": ("m^-3", "1e17 cm^-3"),
+    "grading": ("m^-4", "1e20 cm^-4"),
+    "length": ("m", "2 um"),
+    "area": ("m^2", "100 um^2"),
+    "time": ("s", "1 us"),
+    "velocity": ("m/s", "1e3 cm/s"),
+    "mobility": ("m^2/(V*s)", "1200 cm^2/(V*s)"),
+    "resistivity": ("ohm*m", "1 ohm*cm"),
+    "resistance": ("ohm", "0.5 ohm"),
+    "current": ("A", "1 mA"),
+    "voltage": ("V", "-1 V"),
+    "energy": ("eV", "1.12 eV"),
+    "temperature": ("K", "27 degC"),
+}
+
+_NUMBER = re.compile(r"^\s*([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*(.*?)\s*$")
+_SPELLINGS = (("Ω", "ohm"), ("µ", "u"), ("μ", "u"), ("·", "*"), ("°C", "degC"), ("°F", "degF"))
+_unit_cache: dict = {}
+
+
+def _unit(text):
+    """A parsed pint unit and the factor to the SI unit of its kind (cached per text)."""
+    if text not in _unit_cache:
+        clean = text
+        for a, b in _SPELLINGS:
+            clean = clean.replace(a, b)
+        _unit_cache[text] = ureg.parse_units(clean)
+    return _unit_cache[text]
+
+
+def unit_factor(unit_text, kind):
+    """Multiplier and offset taking numbers in ``unit_text`` to SI numbers of ``kind``.
+
+    Returns ``(scale, offset)`` with si = value * scale + offset (the offset is
+    non-zero only for temperatures in degC or degF). Raises ValueError with a
+    readable reason if the unit does not parse or has the wrong dimension.
+    """
+    si, example = KINDS[kind]
+    try:
+        unit = _unit(unit_text)
+    except Exception:
+        raise ValueError(f"unknown unit {unit_text!r} (expected a {kind}, e.g. \"{example}\")") from None
+    target = ureg.parse_units(si.replace("^", "**"))
+    if unit.dimensionality != target.dimensionality:
+        raise ValueError(f"{unit_text!r} is not a unit of {kind} (e.g. \"{example}\")")
+    zero = ureg.Quantity(0.0, unit).to(target).magnitude
+    one = ureg.Quantity(1.0, unit).to(target).magnitude
+    # pint's conversion factors carry float noise (1e-6 as 9.999999999999999e-07);
+    # 15 significant digits keep every exact decimal factor exact
+    return float(f"{one - zero:.15g}"), float(f"{zero:.15g}")
+
+
+def apply_factor(x, scale, offset=0.0):
+    """x * scale + offset, dividing by 1/scale where that is a whole number.
+
+    Dividing by an exact power of ten keeps "10 us" at 1e-5 s exactly rather
+    than 9.999999999999999e-06. Works on floats and numpy arrays alike.
+    """
+    inv = 1.0 / scale
+    if scale < 1.0 and abs(inv - round(inv)) <= 1e-12 * inv:
+        return x / float(round(inv)) + offset
+    return x * scale + offset
+
+
+def parse_quantity(value, kind, *, key=None, file=None, row=None):
+    """Convert a quantity string such as ``"1e17 cm^-3"`` to an SI float.
+
+    Parameters
+    ----------
+    value : str
+        A number followed by a unit.
+    kind : str
+        A key of :data:`KINDS`.
+    key, file, row :
+        Where the value came from, for the error message.
+
+    Returns
+    -------
+    float
+        The value in the SI unit of ``kind`` (eV for energies).
+
+    Raises
+    ------
+    InputError
+        A bare number, an unknown unit, a wrong dimension, a non-finite value.
+    """
+    def bad(msg):
+        return InputError(msg, key=key, file=file, row=row)
+
+    si, example = KINDS[kind]
+    if isinstance(value, bool) or not isinstance(value, (str, int, float)):
+        raise bad(f"expected a quantity string such as \"{example}\", got {type(value).__name__}")
+    if not isinstance(value, str):
+        raise bad(f"a bare number needs a unit: write it as a string such as \"{example}\"")
+    m = _NUMBER.match(value)
+    if not m:
+        raise bad(f"{value!r} is not a number followed by a unit (e.g. \"{example}\")")
+    number, unit_text = m.groups()
+    if not unit_text:
+        raise bad(f"{value!r} has no unit (e.g. \"{example}\")")
+    x = float(number)
+    try:
+        scale, offset = unit_factor(unit_text, kind)
+    except ValueError as e:
+        raise bad(str(e)) from None
+    out = apply_factor(x, scale, offset)
+    if not math.isfinite(out):
+        raise bad(f"{value!r} is not a finite number")
+    return out
