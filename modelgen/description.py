@@ -261,6 +261,37 @@ def from_mapping(table, *, file=None):
     return assemble({k: [v] for k, v in flat.items()}, sources=[file])
 
 
+def _read_toml(path):
+    try:
+        with open(path, "rb") as fh:
+            return tomllib.load(fh)
+    except FileNotFoundError:
+        raise InputError("no such file", file=path) from None
+    except IsADirectoryError:
+        raise InputError("is a directory, not a description file", file=path) from None
+    except OSError as e:
+        raise InputError(f"cannot read: {e.strerror}", file=path) from None
+    except tomllib.TOMLDecodeError as e:
+        raise InputError(f"not valid TOML: {e}", file=path) from None
+    except UnicodeDecodeError:
+        raise InputError("not valid TOML: the file is not UTF-8 text", file=path) from None
+
+
+def load_with_inputs(path):
+    """Like :func:`load`, and also the flat keys as the user wrote them.
+
+    Returns
+    -------
+    (Device, dict)
+        The device, and ``{dotted key: value as written}`` for card headers.
+    """
+    path = str(path)
+    table = _read_toml(path)
+    raw = _flatten(table, path)
+    device = assemble({k: [v] for k, v in convert(raw, file=path).items()}, sources=[path])
+    return device, raw
+
+
 def load(path):
     """Read a TOML device description into a :class:`Device` of length 1.
 
@@ -270,16 +301,4 @@ def load(path):
         Unreadable file, TOML syntax error, or any rule of the description
         broken; the message names the file and key.
     """
-    path = str(path)
-    try:
-        with open(path, "rb") as fh:
-            table = tomllib.load(fh)
-    except FileNotFoundError:
-        raise InputError("no such file", file=path) from None
-    except OSError as e:
-        raise InputError(f"cannot read: {e.strerror}", file=path) from None
-    except tomllib.TOMLDecodeError as e:
-        raise InputError(f"not valid TOML: {e}", file=path) from None
-    except UnicodeDecodeError:
-        raise InputError("not valid TOML: the file is not UTF-8 text", file=path) from None
-    return from_mapping(table, file=path)
+    return load_with_inputs(path)[0]
