@@ -157,9 +157,11 @@ def convert(flat, *, file=None, row=None):
 
 def _column(columns, key, n):
     spec = KEYS[key]
+    default = np.nan if spec.default is None else float(spec.default)
     if key in columns:
-        return np.asarray(columns[key], dtype=float)
-    return np.full(n, np.nan if spec.default is None else float(spec.default))
+        v = np.asarray(columns[key], dtype=float)
+        return np.where(np.isnan(v), default, v)  # a row that leaves the key out takes the default
+    return np.full(n, default)
 
 
 def assemble(columns, *, sources=None, rows=None):
