@@ -110,7 +110,7 @@ def intrinsic_density(temperature):
     """Intrinsic carrier density of undoped silicon.
 
     ni(T) = 5.29e19 (T/300)^2.54 exp(-6726/T) cm^-3 (converted here to m^-3).
-    9.66e9 cm^-3 at 300 K, in line with Altermatt et al., J. Appl. Phys. 93,
+    9.70e9 cm^-3 at 300 K, in line with Altermatt et al., J. Appl. Phys. 93,
     1598 (2003) (9.65e9 cm^-3).
 
     Parameters

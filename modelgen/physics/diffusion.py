@@ -189,11 +189,16 @@ def excess_profile(x, width, diffusion_length, diffusivity, velocity):
     w = np.asarray(width, dtype=float) / ell
     s = np.asarray(velocity, dtype=float) * ell / np.asarray(diffusivity, dtype=float)
     y = (np.asarray(width, dtype=float) - np.asarray(x, dtype=float)) / ell
-    if np.isinf(s).any():
-        return np.where(np.isinf(s), np.sinh(y) / np.sinh(w),
-                        (np.cosh(y) + np.where(np.isinf(s), 0, s) * np.sinh(y))
-                        / (np.cosh(w) + np.where(np.isinf(s), 0, s) * np.sinh(w)))
-    return (np.cosh(y) + s * np.sinh(y)) / (np.cosh(w) + s * np.sinh(w))
+    # cosh and sinh written with decaying exponentials: no overflow for any W/L;
+    # s <= 1 in s, s > 1 in r = 1/s, so that s = 0 and s = inf are ordinary numbers
+    ey, ew = np.exp(-2.0 * y), np.exp(-2.0 * w)
+    small = s <= 1.0
+    with np.errstate(divide="ignore"):
+        r = np.where(small, 0.0, 1.0 / np.where(small, 1.0, s))
+    s_small = np.where(small, s, 0.0)
+    ratio_small = ((1 + ey) + s_small * (1 - ey)) / ((1 + ew) + s_small * (1 - ew))
+    ratio_large = (r * (1 + ey) + (1 - ey)) / (r * (1 + ew) + (1 - ew))
+    return np.exp(y - w) * np.where(small, ratio_small, ratio_large)
 
 
 def regime(w):
