@@ -7,6 +7,8 @@ prints ``str(error)`` as one line on stderr and exits with status 2.
 
 from __future__ import annotations
 
+import copy
+
 
 class ModelgenError(Exception):
     """Base class of modelgen's own errors."""
@@ -35,9 +37,11 @@ class InputError(ModelgenError):
         self.key = key
 
     def located(self, *, file=None, row=None):
-        """The same error with the file and row filled in where unknown."""
-        return InputError(self.message, file=self.file or file,
-                          row=self.row if self.row is not None else row, key=self.key)
+        """The same error (same class) with the file and row filled in where unknown."""
+        other = copy.copy(self)
+        other.file = self.file or file
+        other.row = self.row if self.row is not None else row
+        return other
 
     def __str__(self):
         parts = []

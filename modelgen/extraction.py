@@ -264,7 +264,7 @@ def derive(device: Device) -> Result:
     derived = {
         "temperature": t, "ni": ni, "bandgap": eg, "builtin_voltage": vbi,
         "depletion_width": w0, "depletion_width_reference": w_ref, "reference_bias": device.reference_bias,
-        "junction_area": area_total, "recombination_lifetime": tau_rec,
+        "junction_area": area_total, "bottom_area": device.area, "recombination_lifetime": tau_rec,
         "breakdown_peak_field": e_peak, "reach_through": reach_p | reach_n,
         "p": {k: p[k] for k in SIDE_QUANTITIES}, "n": {k: n[k] for k in SIDE_QUANTITIES},
     }

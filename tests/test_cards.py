@@ -3,12 +3,13 @@
 import math
 
 import pytest
-from hypothesis import given, strategies as st
+from hypothesis import given, settings, strategies as st
 
 from modelgen import cards, description, extraction
 from modelgen.errors import InputError
 
 
+@settings(deadline=None)
 @given(st.floats(allow_nan=False, allow_infinity=False))
 def test_numbers_round_trip_exactly(x):
     text = cards.format_number(x)
@@ -22,6 +23,7 @@ def test_number_formatting_examples():
         cards.format_number(math.inf)
 
 
+@settings(deadline=None)
 @given(st.text())
 def test_no_text_can_start_a_line_of_its_own(text):
     for line in cards.comment_lines(text):

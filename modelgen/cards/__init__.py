@@ -32,25 +32,93 @@ def _template_dir():
 
 @dataclass(frozen=True)
 class Dialect:
-    """An output dialect: its template and the parameters it carries."""
+    """An output dialect: its template and the parameters it carries.
+
+    ``carries`` lists, in card order, the parameters the simulator reads.
+    ``sidewall`` is ``"split"`` where the simulator has its own sidewall terms
+    (JSW, CJSW, PHP, MJSW with perimeter factor PJ) and ``"fold"`` where the
+    perimeter part is folded into IS and CJO (exact here: the sidewall has the
+    bottom junction's physics per area). ``sections``: the target reads
+    ``.lib NAME`` / ``.endl`` sections.
+    """
 
     name: str
-    template: str
     title: str
     carries: tuple
-    #: what each parameter left out costs, for the card's comment
+    sidewall: str
+    sections: bool
     cost: dict
+    template: str = "card.j2"
 
+
+_COST = {
+    "ISR": "depletion-region recombination current: low-bias current is underestimated",
+    "NR": "ideality of the recombination current",
+    "IKF": "high-injection knee: current at high forward bias is overestimated",
+    "BV": "breakdown: the reverse current does not break down",
+    "IBV": "current at BV",
+}
 
 DIALECTS = {
+    # Berkeley SPICE3 level-1 diode (SPICE3 user's guide)
     "spice3": Dialect(
-        name="spice3", template="spice3.j2",
-        title="Berkeley SPICE3 level-1 diode",
-        carries=("IS", "N", "RS", "CJO", "VJ", "M", "FC", "TT", "BV", "IBV", "EG", "XTI"),
-        cost={"ISR": "depletion-region recombination current: low-bias current is underestimated",
-              "NR": "ideality of the recombination current",
-              "IKF": "high-injection knee: high-current forward voltage is underestimated"}),
+        name="spice3", title="Berkeley SPICE3 level-1 diode",
+        carries=("IS", "N", "RS", "CJO", "VJ", "M", "FC", "TT", "BV", "IBV", "EG", "XTI", "TNOM"),
+        sidewall="fold", sections=False, cost=_COST),
+    # ngspice 39 diode: names checked against ngspice's parameter table and its behaviour
+    # (PHP is the sidewall potential; VJSW is not accepted; PJ=1 on the model makes the
+    # sidewall values totals for one device, as AREA=1 does for the bottom ones)
+    "ngspice": Dialect(
+        name="ngspice", title="ngspice level-1 diode",
+        carries=("IS", "JSW", "N", "RS", "CJO", "CJSW", "VJ", "PHP", "M", "MJSW", "FC", "FCS", "TT",
+                 "BV", "IBV", "EG", "XTI", "ISR", "NR", "IKF", "PJ", "TNOM"),
+        sidewall="split", sections=True, cost=_COST),
+    # gnucap 0.36 diode: no ISR/NR/IKF; BV is accepted but its default diode path has no breakdown
+    "gnucap": Dialect(
+        name="gnucap", title="gnucap diode",
+        carries=("IS", "N", "RS", "CJO", "VJ", "M", "FC", "TT", "EG", "XTI", "TNOM"),
+        sidewall="fold", sections=False,
+        cost={**_COST, "BV": "gnucap 0.36's diode has no breakdown model, so BV would be read and ignored"}),
 }
+
+_SIDEWALL = ("JSW", "CJSW", "PHP", "MJSW", "FCS", "PJ")
+
+
+def card_values(result: Result, i, dialect):
+    """The parameters of device ``i`` as dialect ``dialect`` carries them.
+
+    Returns
+    -------
+    (values, left_out) :
+        ``values``: list of ``(NAME, float)`` in card order; ``left_out``:
+        lines saying what the dialect cannot carry and what that costs.
+    """
+    d = DIALECTS[dialect]
+    row = result.row(i)
+    p = dict(row["params"])
+    p["TNOM"] = round(row["derived"]["temperature"] - 273.15, 9)
+    total = row["derived"]["junction_area"]
+    side = total - row["derived"]["bottom_area"]
+    split = d.sidewall == "split" and side > 0
+    if split:
+        f = row["derived"]["bottom_area"] / total
+        p.update(JSW=p["IS"] * (1 - f), IS=p["IS"] * f, CJSW=p["CJO"] * (1 - f), CJO=p["CJO"] * f,
+                 PHP=p["VJ"], MJSW=p["M"], FCS=p["FC"], PJ=1.0)
+    values, left_out = [], []
+    for name in d.carries:
+        if name in _SIDEWALL and not split:
+            continue
+        v = p[name]
+        if name in ("BV", "IBV") and not math.isfinite(p["BV"]):
+            if name == "BV":
+                left_out.append("BV, IBV: no avalanche breakdown found below 2e6 V/cm")
+            continue
+        values.append((name, v))
+    for name in PARAMETERS:
+        if name not in d.carries and not (name == "IBV" and not math.isfinite(p["BV"])):
+            if math.isfinite(p[name]):
+                left_out.append(f"{name}={format_number(p[name])} ({d.cost.get(name, 'not carried')})")
+    return values, left_out
 
 
 def format_number(x):
@@ -95,6 +163,42 @@ CAUTION = ("CAUTION: a physics-derived estimate. Check it against measured I-V a
            "devices before design sign-off; derate and confirm breakdown.")
 
 
+def _card_header(result, i, dialect, inputs):
+    row = result.row(i)
+    d = DIALECTS[dialect]
+    header = comment_lines(f"{row['name']}: diode model card, modelgen {__version__}, dialect {d.name} ({d.title})")
+    src = result.device.source[i] if len(result.device.source) else None
+    if src:
+        header += comment_lines(f"from: {Path(src).name}")
+    if inputs:
+        header += comment_lines("inputs:") + _inputs_lines(inputs)
+    return header, row
+
+
+def _models_lines(result):
+    lines = comment_lines("models:")
+    for k, v in sorted(result.sources.items()):
+        lines += comment_lines(f"  {k}: {v}")
+    return lines
+
+
+def _block(result, i, dialect, inputs, with_models):
+    header, row = _card_header(result, i, dialect, inputs)
+    if with_models:
+        header += _models_lines(result) + comment_lines(CAUTION)
+    for w in row["warnings"]:
+        header += comment_lines(w)
+    values, left_out = card_values(result, i, dialect)
+    notes = []
+    if left_out:
+        notes = comment_lines(f"left out, the {dialect} set cannot carry them:")
+        for s in left_out:
+            notes += comment_lines("  " + s)
+    params = [(k, format_number(v)) for k, v in values]
+    return _environment().get_template(DIALECTS[dialect].template).render(
+        header=header, notes=notes, name=row["name"], params=params)
+
+
 def card(result: Result, i=0, dialect="spice3", inputs=None):
     """The model card of device ``i`` as text.
 
@@ -110,39 +214,52 @@ def card(result: Result, i=0, dialect="spice3", inputs=None):
         The description's keys and values as the user wrote them, shown in
         the header.
     """
+    return _block(result, i, dialect, inputs, with_models=True)
+
+
+def library(parts, dialect="spice3", title="diode model library"):
+    """Several cards in one file, optionally in named ``.lib`` sections.
+
+    Parameters
+    ----------
+    parts : list of (section, result, i, inputs)
+        ``section`` is a section name or None (no section); ``inputs`` may be
+        None. Cards keep the order given; sections appear in order of first
+        use.
+    dialect : str
+        A key of :data:`DIALECTS`.
+    title : str
+        First header line.
+
+    Raises
+    ------
+    ValueError
+        Named sections for a dialect without them, a section name that is
+        not a SPICE identifier, or a model name used twice in one section.
+    """
     d = DIALECTS[dialect]
-    row = result.row(i)
-    p = row["params"]
-    header = comment_lines(f"{row['name']}: diode model card, modelgen {__version__}, dialect {d.name} ({d.title})")
-    src = result.device.source[i] if len(result.device.source) else None
-    if src:
-        header += comment_lines(f"from: {Path(src).name}")
-    if inputs:
-        header += comment_lines("inputs:") + _inputs_lines(inputs)
-    header += comment_lines("models:")
-    for k, v in sorted(result.sources.items()):
-        header += comment_lines(f"  {k}: {v}")
+    sections, seen = {}, set()
+    for section, result, i, inputs in parts:
+        if section is not None:
+            if not d.sections:
+                raise ValueError(f"the {dialect} dialect has no .lib sections")
+            if not re.fullmatch(r"[A-Za-z][A-Za-z0-9_]{0,63}", section):
+                raise ValueError(f"section name {section!r} must be a letter followed by letters, digits or "
+                                 "underscores")
+        name = result.device.name[i]
+        if (section, name.upper()) in seen:
+            where = f" in section {section}" if section else ""
+            raise ValueError(f"model name {name} is used twice{where}")
+        seen.add((section, name.upper()))
+        sections.setdefault(section, []).append(_block(result, i, dialect, inputs, with_models=False).rstrip("\n"))
+    first = parts[0][1] if parts else None
+    header = comment_lines(f"{title}: {sum(len(v) for v in sections.values())} cards, modelgen {__version__}, "
+                           f"dialect {d.name} ({d.title})")
+    if first is not None:
+        header += _models_lines(first)
     header += comment_lines(CAUTION)
-    for w in row["warnings"]:
-        header += comment_lines(w)
-    params, left_out = [], []
-    for name in d.carries:
-        v = p[name]
-        if name in ("BV", "IBV") and (v is None or not math.isfinite(v)):
-            left_out.append(f"{name}: no avalanche breakdown found")
-            continue
-        params.append((name, format_number(v)))
-    params.append(("TNOM", format_number(round(row["derived"]["temperature"] - 273.15, 9))))
-    for name in PARAMETERS:
-        if name not in d.carries:
-            left_out.append(f"{name}={format_number(p[name])} ({d.cost.get(name, 'not carried')})")
-    notes = []
-    if left_out:
-        notes = comment_lines(f"left out, the {d.name} set cannot carry them:")
-        for s in left_out:
-            notes += comment_lines("  " + s)
-    env = _environment()
-    return env.get_template(d.template).render(header=header, notes=notes, name=row["name"], params=params)
+    return _environment().get_template("library.j2").render(
+        header=header, sections=[{"name": k, "cards": v} for k, v in sections.items()])
 
 
 _ENV = None

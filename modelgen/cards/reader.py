@@ -1,0 +1,323 @@
+"""Read SPICE ``.model`` cards and model libraries back into numbers.
+
+:func:`read_cards` takes the text of a card file or a library and returns one
+:class:`Card` per ``.model`` line; :func:`read_file` does the same for a file;
+:func:`parse_number` reads one SPICE number with its scale suffix.
+
+What is accepted (the conventions are those of the ngspice manual, chapter 2,
+"Circuit Description", checked against ngspice-39's own reading):
+
+* Whole-line comments: a line whose first non-blank character is ``*``.
+* End-of-line comments: everything from ``;``, from ``//``, or from a ``$``
+  that is followed by a blank or ends the line. A ``$`` glued to text is not a
+  comment.
+* Blank lines and comment lines, anywhere, including between the lines of one
+  continued card (ngspice skips them the same way).
+* Continuation: a line whose first non-blank character is ``+`` continues
+  the line before it.
+* Leading blanks on any line are ignored.
+* Keywords in any case: ``.model``, ``.MODEL``, ``.Model``; parameter names
+  in any case (returned upper-case); model types returned upper-case.
+* ``.model NAME TYPE (P1=V1 P2=V2 ...)`` with the parentheses optional, the
+  opening one glued to the type or not (``D(IS=1)``), and the closing one
+  anywhere after the last value, on a line of its own (``+ )``) included.
+  Parameters are separated by blanks and/or commas; ``P = V`` with blanks
+  round the ``=`` is the same as ``P=V``.
+* ``.lib NAME`` ... ``.endl [NAME]`` sections: a card inside one gets the
+  section's name. ``.lib FILE NAME`` (a reference to another library) is
+  ignored, as is ``.include`` and every other dot line, and every element line.
+  Reading stops at ``.end``.
+
+What is refused, with a :class:`CardSyntaxError` that gives the line:
+
+* a number that is not a SPICE number (see :func:`parse_number`); values are
+  numbers only, so ``{expressions}`` and ``'expressions'`` are refused too;
+* a parameter written twice in one card (a card that says two things is
+  suspicious; SPICE itself would silently keep one of them);
+* a ``.model`` line without a name or without a type, a parameter without a
+  ``=`` and a value, a parameter name that is not a name, unbalanced or
+  misplaced parentheses;
+* a ``+`` line with nothing before it to continue;
+* ``.lib`` sections nested, unclosed, or closed with another name, and an
+  ``.endl`` with no open section.
+
+Not handled: subcircuit scope (a ``.model`` inside ``.subckt`` ... ``.ends``
+is returned like any other), the title line of a full netlist (the text is
+read the way a ``.include``-d library is: the first line is an ordinary line),
+and ``.include``/``.lib FILE`` references are not followed.
+"""
+
+from __future__ import annotations
+
+import decimal
+import math
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from ..errors import InputError
+
+__all__ = ["Card", "CardSyntaxError", "parse_number", "read_cards", "read_file"]
+
+
+class CardSyntaxError(InputError):
+    """Text that is not a well-formed SPICE number, card or library.
+
+    ``row`` is the 1-based line number (also available as :attr:`line`),
+    ``key`` the parameter name where one is concerned.
+    """
+
+    @property
+    def line(self):
+        return self.row
+
+
+@dataclass(frozen=True)
+class Card:
+    """One ``.model`` card.
+
+    name : str
+        The model name as written.
+    type : str
+        The model type, upper-case (``"D"``, ``"NPN"``, ...).
+    params : dict
+        Upper-case parameter name -> float, in the order written.
+    line : int
+        1-based line number of the ``.model`` line.
+    section : str or None
+        Name of the enclosing ``.lib NAME`` ... ``.endl`` section, as written
+        on the ``.lib`` line; None outside any section.
+    """
+
+    name: str
+    type: str
+    params: dict = field(hash=False)
+    line: int
+    section: str | None = None
+
+
+# Scale factors (ngspice manual, Table 2.2 "Ngspice scale factors"), as exact
+# decimal strings so that a suffix never costs a rounding. Case does not
+# matter, so M and m are both milli and mega must be written MEG. The manual
+# also says letters after a number or after a scale factor are ignored, so
+# "10pF", "1megohm", "5mA" and "2.5V" read as 10p, 1meg, 5m and 2.5.
+# There is no atto: the ngspice manual's table does not list it and ngspice-39
+# reads "5a" as 5, the "a" a unit letter, so "IBV=1A" means one ampere.
+# MEG and MIL are tried before the one-letter factors.
+SCALE = {
+    "MEG": "1e6", "MIL": "25.4e-6",
+    "T": "1e12", "G": "1e9", "K": "1e3", "M": "1e-3", "U": "1e-6",
+    "N": "1e-9", "P": "1e-12", "F": "1e-15",
+}
+_SUFFIXES = sorted(SCALE, key=len, reverse=True)
+
+# Mantissa, optional exponent, then letters only. As in ngspice, an "e"
+# straight after the mantissa always starts the exponent, and an exponent
+# with no digits is zero: "1emeg" is 1e6 and "1.1eV" is 1.1 in ngspice-39.
+_NUMBER = re.compile(r"([+-]?(?:\d+\.?\d*|\.\d+))(?:[eE]([+-]?)(\d*))?([A-Za-z]*)")
+
+
+def parse_number(text, *, file=None, line=None, key=None):
+    """A SPICE number as a float.
+
+    Accepted: an optional sign, digits with an optional decimal point
+    (``12``, ``-44``, ``3.14159``, ``.5``, ``5.``), an optional exponent
+    (``1e-14``, ``2.65E+3``), then an optional scale factor in any case
+    (T G MEG K M MIL U N P F A; see :data:`SCALE`, ``M`` is milli), then any
+    letters, which are ignored as units (``10pF``, ``1megohm``, ``2.5V``). A
+    scale factor after an exponent multiplies it: ``1e3k`` is 1e6. Blanks
+    round the text are ignored. The result is the correctly rounded double
+    of the exact decimal value, so ``parse_number(repr(x)) == x``.
+
+    Raises :class:`CardSyntaxError` (with the ``file``, ``line`` and ``key``
+    given, for the message) for anything else, including expressions, and
+    for values beyond the range of a double.
+    """
+    s = str(text).strip()
+    m = _NUMBER.fullmatch(s)
+    if m is None:
+        if s[:1] in ("{", "'", '"'):
+            why = f"{s!r} is an expression; only plain numbers can be read"
+        else:
+            why = f"{s!r} is not a SPICE number"
+        raise CardSyntaxError(why, file=file, row=line, key=key)
+    mantissa, sign, digits, letters = m.groups()
+    scale = "1"
+    upper = letters.upper()
+    for suffix in _SUFFIXES:
+        if upper.startswith(suffix):
+            scale = SCALE[suffix]
+            break
+    # exact decimal product (enough digits for the mantissa's and the scale's),
+    # then one correct rounding to a double
+    ctx = decimal.Context(prec=len(mantissa) + 8, Emax=decimal.MAX_EMAX, Emin=decimal.MIN_EMIN)
+    try:
+        exact = decimal.Decimal(f"{mantissa}e{sign or ''}{digits or '0'}")
+        value = float(ctx.multiply(exact, decimal.Decimal(scale)))
+    except (ArithmeticError, ValueError):
+        exact, value = None, math.inf
+    if not math.isfinite(value) or (value == 0.0 and exact != 0):
+        raise CardSyntaxError(f"{s!r} is beyond the range of a double", file=file, row=line, key=key)
+    return value
+
+
+# --- lines -----------------------------------------------------------------
+
+_NEWLINE = re.compile(r"\r\n|\r|\n")
+# ";" or "//" anywhere, or "$" followed by a blank or the end of the line
+_INLINE_COMMENT = re.compile(r";|//|\$(?=\s|$)")
+_TOKEN = re.compile(r"[()=]|[^\s,()=]+")
+_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
+
+
+def _logical_lines(text, file):
+    """``(first line number, [(line number, text), ...])`` per logical line.
+
+    Comments are removed and continuation lines joined to the line they
+    continue (each piece keeps its own line number, for messages).
+    """
+    if text.startswith("\ufeff"):
+        text = text[1:]
+    current = None
+    for number, raw in enumerate(_NEWLINE.split(text), start=1):
+        s = raw.strip()
+        if not s or s.startswith("*"):
+            continue
+        m = _INLINE_COMMENT.search(s)
+        if m:
+            s = s[:m.start()].rstrip()
+        if s.startswith("+"):
+            if current is None:
+                raise CardSyntaxError("a '+' continuation line with no line before it to continue",
+                                      file=file, row=number)
+            current[1].append((number, s[1:]))
+            continue
+        if not s:
+            continue
+        if current is not None:
+            yield current
+        current = (number, [(number, s)])
+    if current is not None:
+        yield current
+
+
+def _tokens(pieces):
+    """``(text, line number)`` for each field: words, ``(``, ``)``, ``=``."""
+    out = []
+    for number, s in pieces:
+        out += [(t, number) for t in _TOKEN.findall(s)]
+    return out
+
+
+def _card(pieces, section, file):
+    """One :class:`Card` from the pieces of a ``.model`` logical line."""
+    toks = _tokens(pieces)[1:]          # drop ".model"
+    first = pieces[0][0]
+    if not toks or toks[0][0] in "()=":
+        raise CardSyntaxError(".model line without a model name", file=file, row=first)
+    name = toks[0][0]
+    if len(toks) < 2 or toks[1][0] in "()=" or (len(toks) > 2 and toks[2][0] == "="):
+        raise CardSyntaxError(f".model {name}: no model type (such as D) after the name",
+                              file=file, row=toks[0][1])
+    mtype, type_line = toks[1]
+    if not _NAME.fullmatch(mtype):
+        raise CardSyntaxError(f".model {name}: {mtype!r} is not a model type", file=file, row=type_line)
+    rest = toks[2:]
+    opened = closed = False
+    if rest and rest[0][0] == "(":
+        opened = True
+        rest = rest[1:]
+    params = {}
+    i = 0
+    while i < len(rest):
+        t, number = rest[i]
+        if t == ")":
+            if not opened or closed:
+                raise CardSyntaxError(f".model {name}: ')' without a matching '('", file=file, row=number)
+            closed = True
+            i += 1
+            continue
+        if closed:
+            raise CardSyntaxError(f".model {name}: {t!r} after the closing ')'", file=file, row=number)
+        if t in "(=":
+            raise CardSyntaxError(f".model {name}: unexpected {t!r} where a parameter name should be",
+                                  file=file, row=number)
+        if not _NAME.fullmatch(t):
+            raise CardSyntaxError(f".model {name}: {t!r} is not a parameter name", file=file, row=number)
+        key = t.upper()
+        if i + 1 >= len(rest) or rest[i + 1][0] != "=":
+            raise CardSyntaxError(f".model {name}: parameter {t} has no value (write {t}=value)",
+                                  file=file, row=number, key=key)
+        eq_line = rest[i + 1][1]
+        if i + 2 >= len(rest) or rest[i + 2][0] in "()=":
+            raise CardSyntaxError(f".model {name}: parameter {t} has no value after '='",
+                                  file=file, row=eq_line, key=key)
+        value, value_line = rest[i + 2]
+        if key in params:
+            raise CardSyntaxError(f".model {name}: parameter {key} is given twice", file=file,
+                                  row=number, key=key)
+        params[key] = parse_number(value, file=file, line=value_line, key=key)
+        i += 3
+    if opened and not closed:
+        raise CardSyntaxError(f".model {name}: '(' is never closed", file=file, row=first)
+    return Card(name=name, type=mtype.upper(), params=params, line=first, section=section)
+
+
+def read_cards(text, *, file=None):
+    """Every ``.model`` card in ``text``, in order, as :class:`Card` objects.
+
+    ``file`` names the source in error messages only. See the module
+    docstring for what is accepted and what raises
+    :class:`CardSyntaxError`.
+    """
+    cards = []
+    section = None                       # (name, line of the .lib)
+    for first, pieces in _logical_lines(str(text), file):
+        words = " ".join(s for _, s in pieces).split()
+        keyword = words[0].lower()
+        if keyword == ".model":
+            cards.append(_card(pieces, section[0] if section else None, file))
+        elif keyword == ".lib":
+            args = words[1:]
+            if not args:
+                raise CardSyntaxError(".lib without a section name", file=file, row=first)
+            if len(args) == 1:
+                if section is not None:
+                    raise CardSyntaxError(f".lib {args[0]} inside section {section[0]} "
+                                          f"(opened on line {section[1]}); sections do not nest",
+                                          file=file, row=first)
+                section = (args[0], first)
+            # .lib FILE NAME refers to another library: not followed
+        elif keyword == ".endl":
+            if section is None:
+                raise CardSyntaxError(".endl without an open .lib section", file=file, row=first)
+            if len(words) > 1 and words[1].lower() != section[0].lower():
+                raise CardSyntaxError(f".endl {words[1]} closes section {section[0]} "
+                                      f"(opened on line {section[1]})", file=file, row=first)
+            section = None
+        elif keyword == ".end":
+            break
+    if section is not None:
+        raise CardSyntaxError(f".lib {section[0]} is never closed with .endl", file=file, row=section[1])
+    return cards
+
+
+def read_file(path):
+    """:func:`read_cards` of a UTF-8 text file.
+
+    Raises :class:`~modelgen.errors.InputError` naming the file when it is
+    missing, not a file, unreadable or not UTF-8, and
+    :class:`CardSyntaxError` (with the file) for what is in it.
+    """
+    name = str(path)
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise InputError("no such file", file=name) from None
+    except IsADirectoryError:
+        raise InputError("is a directory, not a card file", file=name) from None
+    except UnicodeDecodeError as e:
+        raise InputError(f"not UTF-8 text (bad byte at offset {e.start})", file=name) from None
+    except OSError as e:
+        raise InputError(f"cannot be read: {e.strerror or e}", file=name) from None
+    return read_cards(text, file=name)
