@@ -66,40 +66,58 @@ def main():
 
 
 @main.command("card")
-@click.argument("device_file", metavar="DEVICE.toml", type=click.Path(dir_okay=False))
+@click.argument("device_files", metavar="DEVICE.toml...", nargs=-1, required=True,
+                type=click.Path(dir_okay=False))
 @click.option("-o", "--output", type=click.Path(dir_okay=False, writable=True),
               help="Write to this file (atomically: a temporary file, then a rename) instead of stdout.")
 @click.option("--format", "fmt", type=click.Choice(["card", "json"]), default="card", show_default=True,
               help="card: SPICE .model text. json: parameters, derived quantities and warnings, all in SI units "
-                   "(A, V, F, s, ohm, K, m; EG in eV).")
+                   "(A, V, F, s, ohm, K, m; EG in eV); a list when several devices are given.")
 @click.option("--dialect", type=click.Choice(sorted(cards.DIALECTS)), default="spice3", show_default=True,
-              help="Simulator dialect of the card.")
+              help="Simulator dialect: spice3 (portable SPICE3 level-1 set), ngspice (adds ISR, NR, IKF and "
+                   "sidewall terms), gnucap (gnucap's diode set).")
+@click.option("--section", metavar="NAME",
+              help="Put the cards in a named library section (.lib NAME ... .endl NAME); ngspice dialect only.")
 @click.option("-q", "--quiet", is_flag=True, help="Do not repeat the warnings on stderr.")
-def card_command(device_file, output, fmt, dialect, quiet):
-    """Derive the model card of one device described in DEVICE.toml.
+def card_command(device_files, output, fmt, dialect, section, quiet):
+    """Derive the model card of each device described in DEVICE.toml.
 
-    The card goes to stdout unless -o is given. Warnings (a modelled
-    lifetime, reach-through, degenerate doping, ...) are written into the
-    card's header and the JSON, and repeated on stderr unless -q.
+    One file gives one card; several files give one library of cards (for
+    .include), optionally inside a named .lib section (--section). The text
+    goes to stdout unless -o is given. Warnings (a modelled lifetime,
+    reach-through, degenerate doping, ...) are written into each card's
+    header and the JSON, and repeated on stderr unless -q.
 
     \b
-    Example:
+    Examples:
       modelgen card examples/switching_diode.toml
       modelgen card examples/thin_epi_rectifier.toml --format json -o rect.json
+      modelgen card examples/*.toml --dialect ngspice --section typical -o demo.lib
     """
-    try:
-        device, raw = description.load_with_inputs(device_file)
-        result = extraction.derive(device)
-    except InputError as e:
-        _fail(str(e.located(file=device_file)))
+    loaded = []
+    for f in device_files:
+        try:
+            device, raw = description.load_with_inputs(f)
+            loaded.append((extraction.derive(device), raw))
+        except InputError as e:
+            _fail(str(e.located(file=f)))
     if fmt == "json":
-        text = cards.as_json(result, 0)
+        texts = [cards.as_json(r, 0) for r, _ in loaded]
+        text = texts[0] if len(texts) == 1 else "[\n" + ",\n".join(t.rstrip("\n") for t in texts) + "\n]\n"
+    elif len(loaded) == 1 and section is None:
+        text = cards.card(loaded[0][0], 0, dialect=dialect, inputs=loaded[0][1])
     else:
-        text = cards.card(result, 0, dialect=dialect, inputs=raw)
+        try:
+            text = cards.library([(section, r, 0, raw) for r, raw in loaded], dialect=dialect)
+        except ValueError as e:
+            _fail(str(e))
     if not quiet:
-        for w in result.warnings(0):
-            if not w.startswith("note:"):
-                click.echo(f"modelgen: {w}" if w.startswith("caution:") else f"modelgen: warning: {w}", err=True)
+        for (r, _), f in zip(loaded, device_files):
+            prefix = f"{f}: " if len(loaded) > 1 else ""
+            for w in r.warnings(0):
+                if not w.startswith("note:"):
+                    kind = "" if w.startswith("caution:") else "warning: "
+                    click.echo(f"modelgen: {prefix}{kind}{w}", err=True)
     if output:
         try:
             write_atomic(output, text)

@@ -271,3 +271,48 @@ def derive(device: Device) -> Result:
     derived["p"]["depletion_extent"] = xp0
     derived["n"]["depletion_extent"] = xn0
     return Result(device=device, params=params, derived=derived, findings=findings, sources=dict(mat.SOURCES))
+
+
+def _junction_width(result, bias):
+    d = result.device
+    eps = d.relative_permittivity * materials.get("silicon").EPS0
+    col = lambda a: np.asarray(a)[:, None]  # noqa: E731  (devices down, biases across)
+    w, _, _ = junction.depletion_width(col(result.params["VJ"]), bias, col(result.derived["p"]["doping"]),
+                                       col(result.derived["n"]["doping"]), col(d.grading), col(d.linear),
+                                       col(eps))
+    return w, eps
+
+
+def predicted_current(result, vd):
+    """The physics core's own low-injection current at junction voltage vd [A].
+
+    Diffusion current IS (exp(vd/Vt) - 1) plus the Sah-Noyce-Shockley
+    recombination current with the depletion width at vd,
+    q ni W(vd) A / (2 tau) (exp(vd/2Vt) - 1). Valid at low injection, below
+    the knee IKF and away from breakdown; what the SPICE card's diffusion and
+    recombination terms approximate. Arrays broadcast as (devices, biases).
+
+    Parameters
+    ----------
+    result : Result
+    vd : array_like
+        Junction voltage [V], below VJ.
+    """
+    vd = np.asarray(vd, float)[None, :]
+    t = result.derived["temperature"][:, None]
+    vt = materials.get("silicon").thermal_voltage(t)
+    w, _ = _junction_width(result, vd)
+    j_rec = recombination.recombination_saturation_density(
+        result.derived["ni"][:, None], w, result.derived["recombination_lifetime"][:, None])
+    return (result.params["IS"][:, None] * np.expm1(vd / vt)
+            + result.derived["junction_area"][:, None] * j_rec * np.expm1(vd / (2 * vt)))
+
+
+def predicted_capacitance(result, bias):
+    """The physics core's depletion capacitance at a bias [F], eps A / W(bias).
+
+    Arrays broadcast as (devices, biases); bias below VJ.
+    """
+    bias = np.asarray(bias, float)[None, :]
+    w, eps = _junction_width(result, bias)
+    return result.derived["junction_area"][:, None] * junction.depletion_capacitance(w, eps[:, None])
