@@ -18,6 +18,7 @@ import numpy as np
 from . import materials
 from .device import Device, Side
 from .errors import InputError
+from .textio import read_text
 from .units import parse_quantity
 
 
@@ -264,19 +265,11 @@ def from_mapping(table, *, file=None):
 
 
 def _read_toml(path):
+    text = read_text(path, "description file")
     try:
-        with open(path, "rb") as fh:
-            return tomllib.load(fh)
-    except FileNotFoundError:
-        raise InputError("no such file", file=path) from None
-    except IsADirectoryError:
-        raise InputError("is a directory, not a description file", file=path) from None
-    except OSError as e:
-        raise InputError(f"cannot read: {e.strerror}", file=path) from None
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as e:
         raise InputError(f"not valid TOML: {e}", file=path) from None
-    except UnicodeDecodeError:
-        raise InputError("not valid TOML: the file is not UTF-8 text", file=path) from None
 
 
 def load_with_inputs(path):

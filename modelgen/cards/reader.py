@@ -56,8 +56,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import InputError
+from ..textio import read_text
 
-__all__ = ["Card", "CardSyntaxError", "parse_number", "read_cards", "read_file"]
+__all__ = ["Card", "CardSyntaxError", "parse_number", "read_cards", "read_file", "read_text"]
 
 
 class CardSyntaxError(InputError):
@@ -309,15 +310,4 @@ def read_file(path):
     missing, not a file, unreadable or not UTF-8, and
     :class:`CardSyntaxError` (with the file) for what is in it.
     """
-    name = str(path)
-    try:
-        text = Path(path).read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError("no such file", file=name) from None
-    except IsADirectoryError:
-        raise InputError("is a directory, not a card file", file=name) from None
-    except UnicodeDecodeError as e:
-        raise InputError(f"not UTF-8 text (bad byte at offset {e.start})", file=name) from None
-    except OSError as e:
-        raise InputError(f"cannot be read: {e.strerror or e}", file=name) from None
-    return read_cards(text, file=name)
+    return read_cards(read_text(path, "card file"), file=str(path))

@@ -89,8 +89,9 @@ def simulate(library_text, names, dc_volts, cap_volts, *, rs=None, temperature_c
     Returns
     -------
     dict
-        ``{name: {"current": array [A], "capacitance": array [F]}}`` and
-        ``"messages"``: ngspice's warning and error lines.
+        ``{name: {"voltage": array [V], "current": array [A], "capacitance": array [F],
+        "messages": list of str}}``; the messages are ngspice's warning and error lines
+        that name the model, or all of them where none does.
 
     Raises
     ------
@@ -116,10 +117,12 @@ def simulate(library_text, names, dc_volts, cap_volts, *, rs=None, temperature_c
         if not os.path.exists(out_dc) or (len(cap_volts) and not os.path.exists(out_ac)):
             raise RuntimeError("ngspice failed:\n" + log[-4000:])
         _, dc = _read_table(out_dc)
-        result = {"messages": messages}
-        dc_v = dc[:, 0]
+        result = {}
         for k, name in enumerate(names):
-            result[name] = {"voltage": dc_v, "current": dc[:, 1 + k]}
+            mine = [m for m in messages if name.lower() in m.lower()]
+            result[name] = {"voltage": dc[:, 0], "current": dc[:, 1 + k],
+                            # ngspice names the model in some messages, only the line in others
+                            "messages": mine or messages}
         if len(cap_volts):
             _, ac = _read_table(out_ac)
             omega = 2 * np.pi * FREQUENCY

@@ -1,0 +1,28 @@
+"""Reading a user's text file, with errors that name the file."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from .errors import InputError
+
+
+def read_text(path, kind="input file"):
+    """The UTF-8 text of ``path``.
+
+    Raises
+    ------
+    InputError
+        Naming the file: missing, a directory, unreadable, or not UTF-8.
+    """
+    name = str(path)
+    try:
+        return Path(path).read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise InputError("no such file", file=name) from None
+    except IsADirectoryError:
+        raise InputError(f"is a directory, not a {kind}", file=name) from None
+    except UnicodeDecodeError as e:
+        raise InputError(f"not UTF-8 text (bad byte at offset {e.start})", file=name) from None
+    except OSError as e:
+        raise InputError(f"cannot be read: {e.strerror or e}", file=name) from None
