@@ -53,7 +53,6 @@ import decimal
 import math
 import re
 from dataclasses import dataclass, field
-from pathlib import Path
 
 from ..errors import InputError
 from ..textio import read_text
