@@ -7,7 +7,6 @@ tests skip, naming the package to install; in CI (CI=true) they must run.
 """
 
 import json
-import math
 import os
 import subprocess
 from pathlib import Path
