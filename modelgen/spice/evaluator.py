@@ -217,7 +217,9 @@ def capacitance(card, v, simulator="ngspice", gmin=None):
     i, vd = dc_current(card, v, simulator, gmin)
     _, gb = junction_current(card, vd, simulator, gmin)
     c = _depletion(p["CJO"] * p["AREA"], p["VJ"], p["M"], p["FC"], vd)
-    if p["CJSW"] > 0 and p["PJ"] > 0:
+    # gnucap 0.36 takes the perimeter only from the instance (default 0), never from the card
+    pj = p["PJ"] if SIMULATORS[simulator].sidewall_current else 0.0
+    if p["CJSW"] > 0 and pj > 0:
         fcs = p["FCS"] if simulator == "ngspice" else p["FC"]
-        c = c + _depletion(p["CJSW"] * p["PJ"], p["PHP"], p["MJSW"], fcs, vd)
+        c = c + _depletion(p["CJSW"] * pj, p["PHP"], p["MJSW"], fcs, vd)
     return c + p["TT"] * gb
