@@ -72,6 +72,8 @@ KEYS = {
     "grading": Key("grading", "impurity gradient of a linear profile", minimum=0.0),
     "recombination_lifetime": Key("time", "lifetime for the depletion-region current "
                                   "(default: the lighter side's)", minimum=0.0),
+    "lifetime_temperature_exponent": Key("number", "lifetimes scale as (T/Tnom)^exponent away from the "
+                                         "nominal temperature", default=0.0),
     "card.fc": Key("number", "SPICE FC, forward-bias depletion capacitance coefficient", default=0.5,
                    minimum=0.0, maximum=1.0),
     "card.breakdown_current": Key("current", "current at which BV is quoted (SPICE IBV)", default=1e-3,
@@ -249,6 +251,8 @@ def assemble(columns, *, sources=None, rows=None):
         ni=num["material.ni"], bandgap=num["material.bandgap"],
         fc=num["card.fc"], breakdown_current=num["card.breakdown_current"],
         recombination_lifetime=num["recombination_lifetime"],
+        reference_temperature=num["temperature"],
+        lifetime_exponent=num["lifetime_temperature_exponent"],
         p=side("p"), n=side("n"), source=sources,
     )
 

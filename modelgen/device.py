@@ -47,7 +47,10 @@ class Device:
     ----------
     name : model names, one per device.
     material : material names (keys of :data:`modelgen.materials.MATERIALS`).
-    temperature : nominal temperature, the card's TNOM [K].
+    temperature : temperature at which the physics is evaluated, the card's TNOM [K].
+    reference_temperature : where the given ni, bandgap, lifetime, diffusion length and
+        resistivity hold: the description's nominal temperature [K].
+    lifetime_exponent : lifetimes scale as (T / reference_temperature)^exponent [-].
     area : junction area [m^2].
     perimeter : junction perimeter [m] (0 = none).
     junction_depth : depth of the junction for the sidewall [m] (0 = none).
@@ -81,6 +84,8 @@ class Device:
     fc: np.ndarray
     breakdown_current: np.ndarray
     recombination_lifetime: np.ndarray
+    reference_temperature: np.ndarray
+    lifetime_exponent: np.ndarray
     p: Side
     n: Side
     source: tuple = field(default=())

@@ -130,10 +130,14 @@ def derive(device: Device) -> Result:
     mat = materials.get("silicon")  # only material so far
     findings = []
     t = device.temperature
+    t_ref = device.reference_temperature  # where the user's values (ni, bandgap, lifetime, resistivity) hold
     vt = mat.thermal_voltage(t)
     eps = device.relative_permittivity * mat.EPS0
-    ni = np.where(_given(device.ni), device.ni, mat.intrinsic_density(t))
-    eg = np.where(_given(device.bandgap), device.bandgap, mat.bandgap(t))
+    # a given ni or band gap holds at the reference temperature; the model carries it to t
+    ni = np.where(_given(device.ni), device.ni * mat.intrinsic_density(t) / mat.intrinsic_density(t_ref),
+                  mat.intrinsic_density(t))
+    eg = np.where(_given(device.bandgap), device.bandgap + mat.bandgap(t) - mat.bandgap(t_ref), mat.bandgap(t))
+    tau_scale = (t / t_ref) ** device.lifetime_exponent
     area_total = device.area + device.perimeter * device.junction_depth
 
     sides = {}
@@ -144,7 +148,8 @@ def derive(device: Device) -> Result:
         from_rho = np.isnan(side.doping)
         with np.errstate(invalid="ignore", divide="ignore"):
             n_rho = np.where(_given(mu_override), 1.0 / (mat.Q * side.resistivity * mu_override),
-                             mat.doping_from_resistivity(np.where(from_rho, side.resistivity, 1.0), majority, t))
+                             mat.doping_from_resistivity(np.where(from_rho, side.resistivity, 1.0), majority,
+                                                         t_ref))
         doping = np.where(from_rho, n_rho, side.doping)
         _fail(device, from_rho & ~np.isfinite(doping), f"{name}.resistivity",
               "outside the range of the mobility model (doping 1e12-1e22 cm^-3)")
@@ -153,9 +158,12 @@ def derive(device: Device) -> Result:
                           mat.minority_mobility(doping, minority, t))
         diff = mu_min * vt
         modelled = np.isnan(side.lifetime) & np.isnan(side.diffusion_length)
-        tau = np.where(_given(side.lifetime), side.lifetime,
-                       np.where(_given(side.diffusion_length), side.diffusion_length**2 / diff,
-                                mat.minority_lifetime(doping, name)))
+        # a diffusion length is given at the reference temperature: tau = L^2 / D there
+        d_ref = vt * np.where(_given(side.minority_mobility), side.minority_mobility,
+                              mat.minority_mobility(doping, minority, t_ref)) * (t_ref / t)
+        tau = tau_scale * np.where(_given(side.lifetime), side.lifetime,
+                                   np.where(_given(side.diffusion_length), side.diffusion_length**2 / d_ref,
+                                            mat.minority_lifetime(doping, name)))
         findings.append(Finding(modelled, f"{name} side: no lifetime given; using the doping-dependent "
                                 "SRH + Auger model, tau = {tau:.3g} s. Lifetime is process dependent: "
                                 "give a measured value where you have one", {"tau": tau}))
@@ -225,7 +233,7 @@ def derive(device: Device) -> Result:
     tt = (p["saturation_current_density"] * p["transit_time"]
           + n["saturation_current_density"] * n["transit_time"]) / j0
     tau_light = np.where(lighter == "p", p["lifetime"], n["lifetime"])
-    tau_rec = np.where(_given(device.recombination_lifetime), device.recombination_lifetime, tau_light)
+    tau_rec = np.where(_given(device.recombination_lifetime), device.recombination_lifetime * tau_scale, tau_light)
     isr = area_total * recombination.recombination_saturation_density(ni, w0, tau_rec)
     n_light = np.minimum(na, nd)
     ni_eff_light = np.where(lighter == "p", p["ni_eff"], n["ni_eff"])

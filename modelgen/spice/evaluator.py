@@ -69,11 +69,86 @@ def _params(card):
     return p
 
 
-def thermal_voltage(card, simulator="ngspice"):
-    """kT/q at the card's TNOM with the simulator's constants [V]."""
+def thermal_voltage(card, simulator="ngspice", temperature_c=None):
+    """kT/q at ``temperature_c`` (default the card's TNOM) with the simulator's constants [V]."""
     s = SIMULATORS[simulator]
-    t = _params(card)["TNOM"] + 273.15
+    t = (_params(card)["TNOM"] if temperature_c is None else temperature_c) + 273.15
     return s.boltzmann * t / s.charge
+
+
+#: SPICE3's reference temperature, 27 degC [K].
+REFTEMP = 300.15
+
+
+def adjusted(card, temperature_c=None, simulator="ngspice"):
+    """The card's parameters as the simulator rescales them to a temperature.
+
+    ngspice (TLEV = TLEVC = 0, as our cards leave them), from the SPICE3 diode
+    temperature routine:
+
+    - IS(T) = IS exp((T/TNOM - 1) EG/(N Vt) + XTI/N ln(T/TNOM)), Vt = kT/q;
+      ISR the same with NR; JSW the same with N.
+    - VJ(T), CJO(T): SPICE3's law with its own band gap
+      1.16 - 7.02e-4 T^2/(T + 1108) eV and a 400e-6 /K grading term; PHP and
+      CJSW alike.
+    - BV(T) = BV - TCV (T - TNOM); RS(T) = RS (1 + TRS1 dT + TRS2 dT^2);
+      TT(T) = TT (1 + TTT1 dT + TTT2 dT^2).
+
+    gnucap 0.36 rescales IS alone, with (T/TNOM)^XTI (XTI not divided by N).
+
+    Parameters
+    ----------
+    card : dict
+    temperature_c : float, optional
+        Circuit temperature [degC]; default TNOM (no change).
+    simulator : {'ngspice', 'gnucap'}
+
+    Returns
+    -------
+    dict
+        All parameters, the temperature-dependent ones rescaled, with ``T``
+        the temperature [K].
+    """
+    sim = SIMULATORS[simulator]
+    p = _params(card)
+    tnom = p["TNOM"] + 273.15
+    t = tnom if temperature_c is None else temperature_c + 273.15
+    p["T"] = t
+    if t == tnom:
+        return p
+    vt = sim.boltzmann * t / sim.charge
+    ratio = t / tnom
+    if simulator == "gnucap":
+        p["IS"] = p["IS"] * ratio ** p["XTI"] * np.exp(p["EG"] / (p["N"] * vt) * (ratio - 1))
+        return p
+
+    def sat(value, n):
+        return value * np.exp((ratio - 1) * p["EG"] / (n * vt) + p["XTI"] / n * np.log(ratio))
+
+    p["IS"] = sat(p["IS"], p["N"])
+    p["ISR"] = sat(p["ISR"], p["NR"])
+    p["JSW"] = sat(p["JSW"], p.get("NS", p["N"]))
+    k, q = sim.boltzmann, sim.charge
+    vtnom = k * tnom / q
+
+    def pbfact(temp, v_t):
+        egfet = 1.16 - 7.02e-4 * temp * temp / (temp + 1108)
+        arg = -egfet / (2 * k * temp) + 1.1150877 / (k * 2 * REFTEMP)
+        return -2 * v_t * (1.5 * np.log(temp / REFTEMP) + q * arg)
+
+    pb_t, pb_nom = pbfact(t, vt), pbfact(tnom, vtnom)
+    for cap, pot, grade in (("CJO", "VJ", "M"), ("CJSW", "PHP", "MJSW")):
+        pbo = (p[pot] - pb_nom) / (tnom / REFTEMP)
+        gma_old = (p[pot] - pbo) / pbo
+        c = p[cap] / (1 + p[grade] * (400e-6 * (tnom - REFTEMP) - gma_old))
+        p[pot] = pb_t + (t / REFTEMP) * pbo
+        gma_new = (p[pot] - pbo) / pbo
+        p[cap] = c * (1 + p[grade] * (400e-6 * (t - REFTEMP) - gma_new))
+    dt = t - tnom
+    p["BV"] = p["BV"] - p.get("TCV", 0.0) * dt
+    p["RS"] = p["RS"] * (1 + p.get("TRS1", 0.0) * dt + p.get("TRS2", 0.0) * dt * dt)
+    p["TT"] = p["TT"] * (1 + p.get("TTT1", 0.0) * dt + p.get("TTT2", 0.0) * dt * dt)
+    return p
 
 
 def _breakdown_knee(p, csat, vt):
@@ -93,7 +168,7 @@ def _breakdown_knee(p, csat, vt):
     return xbv
 
 
-def junction_current(card, vd, simulator="ngspice", gmin=None):
+def junction_current(card, vd, simulator="ngspice", gmin=None, temperature_c=None):
     """Current through the junction (RS excluded) at junction voltage vd.
 
     Parameters
@@ -107,6 +182,9 @@ def junction_current(card, vd, simulator="ngspice", gmin=None):
     gmin : float, optional
         Conductance the simulator puts across the junction [S]; default the
         simulator's.
+    temperature_c : float, optional
+        Circuit temperature [degC]; default the card's TNOM. The parameters
+        are rescaled as :func:`adjusted` says.
 
     Returns
     -------
@@ -115,10 +193,10 @@ def junction_current(card, vd, simulator="ngspice", gmin=None):
         [S], which is what multiplies TT in the diffusion capacitance.
     """
     s = SIMULATORS[simulator]
-    p = _params(card)
+    p = adjusted(card, temperature_c, simulator)
     g = s.gmin if gmin is None else gmin
     vd = np.asarray(vd, float)
-    vt = thermal_voltage(card, simulator)
+    vt = s.boltzmann * p["T"] / s.charge
     vte = p["N"] * vt
     csat = p["IS"] * p["AREA"]
     if s.sidewall_current and "NS" not in {k.upper() for k in card}:
@@ -162,7 +240,7 @@ def junction_current(card, vd, simulator="ngspice", gmin=None):
     return i + g * vd, gb
 
 
-def dc_current(card, v, simulator="ngspice", gmin=None, iterations=200):
+def dc_current(card, v, simulator="ngspice", gmin=None, iterations=200, temperature_c=None):
     """Terminal current at terminal voltage v, the series RS solved exactly.
 
     Solves v = vd + RS I(vd) for vd by bisection (the left side rises
@@ -181,19 +259,24 @@ def dc_current(card, v, simulator="ngspice", gmin=None, iterations=200):
         Terminal current [A] and junction voltage [V].
     """
     v = np.asarray(v, float)
-    rs = _params(card)["RS"] / _params(card)["AREA"]
+    p = adjusted(card, temperature_c, simulator)
+    rs = p["RS"] / p["AREA"]
+
+    def current(x):
+        return junction_current(card, x, simulator, gmin, temperature_c)[0]
+
     if rs == 0:
-        return junction_current(card, v, simulator, gmin)[0], v
+        return current(v), v
     lo, hi = np.minimum(v, 0.0), np.maximum(v, 0.0)
     for _ in range(iterations):
         mid = 0.5 * (lo + hi)
-        over = mid + rs * junction_current(card, mid, simulator, gmin)[0] > v
+        over = mid + rs * current(mid) > v
         hi = np.where(over, mid, hi)
         lo = np.where(over, lo, mid)
         if np.all(hi - lo <= 4 * np.finfo(float).eps * np.maximum(np.abs(hi), 1e-300)):
             break
     vd = 0.5 * (lo + hi)
-    return junction_current(card, vd, simulator, gmin)[0], vd
+    return current(vd), vd
 
 
 def _depletion(c0, vj, m, fc, vd):
@@ -205,7 +288,7 @@ def _depletion(c0, vj, m, fc, vd):
     return np.where(vd < fc * vj, below, above)
 
 
-def capacitance(card, v, simulator="ngspice", gmin=None):
+def capacitance(card, v, simulator="ngspice", gmin=None, temperature_c=None):
     """Small-signal junction capacitance at terminal voltage v [F].
 
     Depletion capacitance CJO (1 - Vd/VJ)^-M below FC VJ and SPICE's linear
@@ -213,9 +296,9 @@ def capacitance(card, v, simulator="ngspice", gmin=None):
     PJ), plus the diffusion capacitance TT dI/dVd of the bottom diode, at the
     junction voltage of the DC solution.
     """
-    p = _params(card)
-    i, vd = dc_current(card, v, simulator, gmin)
-    _, gb = junction_current(card, vd, simulator, gmin)
+    p = adjusted(card, temperature_c, simulator)
+    i, vd = dc_current(card, v, simulator, gmin, temperature_c=temperature_c)
+    _, gb = junction_current(card, vd, simulator, gmin, temperature_c)
     c = _depletion(p["CJO"] * p["AREA"], p["VJ"], p["M"], p["FC"], vd)
     # gnucap 0.36 takes the perimeter only from the instance (default 0), never from the card
     pj = p["PJ"] if SIMULATORS[simulator].sidewall_current else 0.0
