@@ -11,11 +11,14 @@ simulator to check with.
 
 from __future__ import annotations
 
+import json
 import os
 import sys
 import tempfile
+from dataclasses import replace
 
 import click
+import numpy as np
 
 from . import __version__, cards, description, extraction
 from .errors import InputError
@@ -175,6 +178,132 @@ def check_command(card_file, simulator):
     click.echo(f"{len(outcomes) - len(bad)} of {len(outcomes)} checks passed "
                f"(tolerance {check.TOLERANCE:.1%}, simulators: {', '.join(present)})")
     sys.exit(EXIT_MISMATCH if bad else 0)
+
+
+def _temperature_c(text):
+    """A corner temperature: a bare number is degC; otherwise a quantity with its unit."""
+    from .units import parse_quantity
+
+    try:
+        return float(text)
+    except ValueError:
+        pass
+    try:
+        return parse_quantity(text, "temperature", key="--at") - 273.15
+    except InputError as e:
+        _fail(str(e))
+
+
+def _percent(x):
+    return f"{100 * x:.3g} %"
+
+
+@main.command("corners")
+@click.argument("device_file", metavar="DEVICE.toml", type=click.Path(dir_okay=False))
+@click.option("--at", "at", multiple=True, metavar="TEMP",
+              help="A corner temperature; degC unless a unit is given (\"300 K\"). Repeat for more.")
+@click.option("--from", "t_from", metavar="TEMP", help="First temperature of a range (with --to and --step).")
+@click.option("--to", "t_to", metavar="TEMP", help="Last temperature of a range.")
+@click.option("--step", "t_step", type=float, metavar="K", help="Step of the range [K].")
+@click.option("--per-corner", is_flag=True,
+              help="One card per temperature (name suffixed _M40, _27, _125 ..., TNOM the corner) in one library, "
+                   "a .lib section per corner where the dialect has them.")
+@click.option("--dialect", type=click.Choice(sorted(cards.DIALECTS)), default="spice3", show_default=True,
+              help="Simulator dialect; ngspice also fits TCV (BV) and TRS1/TRS2 (RS).")
+@click.option("--format", "fmt", type=click.Choice(["card", "json"]), default="card", show_default=True,
+              help="card: SPICE text. json: every corner's parameters and derived quantities, and the fit.")
+@click.option("--max-error", type=float, default=5.0, show_default=True, metavar="PERCENT",
+              help="Warn when the fitted card misses the physics by more than this at a corner.")
+@click.option("-o", "--output", type=click.Path(dir_okay=False, writable=True),
+              help="Write to this file (atomically) instead of stdout.")
+@click.option("-q", "--quiet", is_flag=True, help="Print only errors on stderr.")
+def corners_command(device_file, at, t_from, t_to, t_step, per_corner, dialect, fmt, max_error, output, quiet):
+    """Cards for temperature corners: one card that scales right, or one per corner.
+
+    The physics is evaluated at each corner (given values such as a lifetime
+    or a resistivity hold at the description's nominal temperature; set
+    lifetime_temperature_exponent to scale lifetimes). By default one card at
+    the nominal temperature is written, with EG and XTI (ngspice: also TCV,
+    TRS1, TRS2) least-squares fitted so that the simulator's own temperature
+    scaling reproduces the physics at every corner; the worst relative error
+    of IS, ISR, CJO, BV and RS over the corners is printed and written into
+    the card header. With no temperatures given the corners are -40, 27, 85
+    and 125 degC.
+
+    \b
+    Examples:
+      modelgen corners examples/switching_diode.toml --at -40 --at 27 --at 125
+      modelgen corners examples/photodiode.toml --from -40 --to 125 --step 15 --dialect ngspice
+      modelgen corners examples/switching_diode.toml --per-corner --dialect ngspice -o corners.lib
+    """
+    from . import corners
+
+    temps = [_temperature_c(a) for a in at]
+    if any(x is not None for x in (t_from, t_to, t_step)):
+        if None in (t_from, t_to, t_step) or t_step <= 0:
+            _fail("--from, --to and --step go together, with a positive step")
+        lo, hi = _temperature_c(t_from), _temperature_c(t_to)
+        temps += list(np.round(np.arange(lo, hi + 0.5 * t_step, t_step), 9))
+    if not temps:
+        temps = list(corners.DEFAULT_CORNERS_C)
+    temps = sorted(set(float(t) for t in temps))
+    if temps[0] <= -273.15 + 50 or temps[-1] >= 700 - 273.15:
+        _fail("corner temperatures must lie within 50-700 K (the material models' range)")
+    try:
+        device, raw = description.load_with_inputs(device_file)
+    except InputError as e:
+        _fail(str(e.located(file=device_file)))
+    nominal_c = round(float(device.temperature[0]) - 273.15, 9)
+    evaluated = sorted(set(temps) | {nominal_c})
+    try:
+        result = corners.evaluate(device, np.array(evaluated) + 273.15)
+    except InputError as e:
+        _fail(str(e.located(file=device_file)))
+    nominal = evaluated.index(nominal_c)
+    fitted = corners.fit(result, nominal, dialect)
+    span = f"{temps[0]:g} to {temps[-1]:g} degC ({', '.join(f'{t:g}' for t in temps)})"
+    fit_lines = [f"temperature fit over {span}, dialect {dialect}:",
+                 "  fitted " + ", ".join(f"{k}={cards.format_number(v)}" for k, v in fitted.values.items()),
+                 "  worst error over the corners: " + ", ".join(f"{k} {_percent(v)}"
+                                                               for k, v in fitted.worst_error.items())]
+    over = {k: v for k, v in fitted.worst_error.items() if v > max_error / 100}
+    warn = [f"warning: the single card misses the physics at some corner by more than {max_error:g} %: "
+            + ", ".join(f"{k} {_percent(v)}" for k, v in over.items())] if over else []
+    if fmt == "json":
+        rows = []
+        for k, t in enumerate(evaluated):
+            if t in temps:
+                r = cards.row_document(result, k)
+                rows.append({"temperature": r["derived"]["temperature"], "params": r["params"],
+                             "derived": r["derived"]})
+        doc = {"name": device.name[0], "dialect": dialect, "corners": rows,
+               "fit": {**fitted.values, "worst_error": fitted.worst_error},
+               "warnings": result.warnings(nominal) + warn}
+        text = json.dumps(cards.json_safe(doc), indent=2, allow_nan=False) + "\n"
+    elif per_corner:
+        idx = [evaluated.index(t) for t in temps]
+        names = tuple(f"{device.name[0]}_{corners.corner_tag(t)}" for t in evaluated)
+        if max(len(n) for n in names) > 64:
+            _fail(f"{device_file}: name: too long for a corner suffix (64 characters at most)")
+        renamed = corners.evaluate(replace(device, name=(names[0],)), np.array(evaluated) + 273.15)
+        renamed = replace(renamed, device=replace(renamed.device, name=names))
+        sectioned = cards.DIALECTS[dialect].sections
+        parts = [(f"T{corners.corner_tag(evaluated[k])}" if sectioned else None, renamed, k, raw) for k in idx]
+        text = cards.library(parts, dialect=dialect, title=f"{device.name[0]} at {len(idx)} temperature corners",
+                             extra=fit_lines[:1] + ["per-corner cards: each has its own TNOM"])
+    else:
+        text = cards.card(result, nominal, dialect=dialect, inputs=raw, overrides=fitted.values,
+                          extra=fit_lines + warn)
+    if not quiet:
+        for line in fit_lines + warn:
+            click.echo(f"modelgen: {line.strip()}", err=True)
+    if output:
+        try:
+            write_atomic(output, text)
+        except OSError as e:
+            _fail(f"{output}: cannot write: {e.strerror}")
+    else:
+        click.echo(text, nl=False)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -71,7 +71,7 @@ DIALECTS = {
     "ngspice": Dialect(
         name="ngspice", title="ngspice level-1 diode",
         carries=("IS", "JSW", "N", "RS", "CJO", "CJSW", "VJ", "PHP", "M", "MJSW", "FC", "FCS", "TT",
-                 "BV", "IBV", "EG", "XTI", "ISR", "NR", "IKF", "PJ", "TNOM"),
+                 "BV", "IBV", "EG", "XTI", "ISR", "NR", "IKF", "PJ", "TCV", "TRS1", "TRS2", "TNOM"),
         sidewall="split", sections=True, cost=_COST),
     # gnucap 0.36 diode: no ISR/NR/IKF; BV is accepted but its default diode path has no breakdown
     "gnucap": Dialect(
@@ -82,10 +82,15 @@ DIALECTS = {
 }
 
 _SIDEWALL = ("JSW", "CJSW", "PHP", "MJSW", "FCS", "PJ")
+#: Parameters a card carries only when a fit supplies them.
+_OPTIONAL = ("TCV", "TRS1", "TRS2")
 
 
-def card_values(result: Result, i, dialect):
+def card_values(result: Result, i, dialect, overrides=None):
     """The parameters of device ``i`` as dialect ``dialect`` carries them.
+
+    ``overrides`` (name -> value) replace or add parameters, e.g. fitted EG,
+    XTI, TCV, TRS1, TRS2; TCV and TRS1/2 appear only when supplied.
 
     Returns
     -------
@@ -97,6 +102,7 @@ def card_values(result: Result, i, dialect):
     row = result.row(i)
     p = dict(row["params"])
     p["TNOM"] = round(row["derived"]["temperature"] - 273.15, 9)
+    p.update(overrides or {})
     total = row["derived"]["junction_area"]
     side = total - row["derived"]["bottom_area"]
     split = d.sidewall == "split" and side > 0
@@ -106,7 +112,7 @@ def card_values(result: Result, i, dialect):
                  PHP=p["VJ"], MJSW=p["M"], FCS=p["FC"], PJ=1.0)
     values, left_out = [], []
     for name in d.carries:
-        if name in _SIDEWALL and not split:
+        if (name in _SIDEWALL and not split) or (name in _OPTIONAL and name not in p):
             continue
         v = p[name]
         if name in ("BV", "IBV") and not math.isfinite(p["BV"]):
@@ -182,13 +188,15 @@ def _models_lines(result):
     return lines
 
 
-def _block(result, i, dialect, inputs, with_models):
+def _block(result, i, dialect, inputs, with_models, overrides=None, extra=()):
     header, row = _card_header(result, i, dialect, inputs)
     if with_models:
         header += _models_lines(result) + comment_lines(CAUTION)
+    for line in extra:
+        header += comment_lines(line)
     for w in row["warnings"]:
         header += comment_lines(w)
-    values, left_out = card_values(result, i, dialect)
+    values, left_out = card_values(result, i, dialect, overrides)
     notes = []
     if left_out:
         notes = comment_lines(f"left out, the {dialect} set cannot carry them:")
@@ -199,7 +207,7 @@ def _block(result, i, dialect, inputs, with_models):
         header=header, notes=notes, name=row["name"], params=params)
 
 
-def card(result: Result, i=0, dialect="spice3", inputs=None):
+def card(result: Result, i=0, dialect="spice3", inputs=None, overrides=None, extra=()):
     """The model card of device ``i`` as text.
 
     Parameters
@@ -213,11 +221,15 @@ def card(result: Result, i=0, dialect="spice3", inputs=None):
     inputs : dict, optional
         The description's keys and values as the user wrote them, shown in
         the header.
+    overrides : dict, optional
+        Parameters replacing the derived ones (a temperature fit's).
+    extra : sequence of str
+        More header lines (made safe like all header text).
     """
-    return _block(result, i, dialect, inputs, with_models=True)
+    return _block(result, i, dialect, inputs, with_models=True, overrides=overrides, extra=extra)
 
 
-def library(parts, dialect="spice3", title="diode model library"):
+def library(parts, dialect="spice3", title="diode model library", extra=()):
     """Several cards in one file, optionally in named ``.lib`` sections.
 
     Parameters
@@ -230,6 +242,8 @@ def library(parts, dialect="spice3", title="diode model library"):
         A key of :data:`DIALECTS`.
     title : str
         First header line.
+    extra : sequence of str
+        More lines for the file header.
 
     Raises
     ------
@@ -255,6 +269,8 @@ def library(parts, dialect="spice3", title="diode model library"):
     first = parts[0][1] if parts else None
     header = comment_lines(f"{title}: {sum(len(v) for v in sections.values())} cards, modelgen {__version__}, "
                            f"dialect {d.name} ({d.title})")
+    for line in extra:
+        header += comment_lines(line)
     if first is not None:
         header += _models_lines(first)
     header += comment_lines(CAUTION)
@@ -274,18 +290,21 @@ def _environment():
     return _ENV
 
 
-def _json_safe(v):
+def json_safe(v):
+    """``v`` with non-finite floats as None, through dicts and lists (strict JSON)."""
     if isinstance(v, dict):
-        return {k: _json_safe(x) for k, x in v.items()}
+        return {k: json_safe(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [json_safe(x) for x in v]
     if isinstance(v, float) and not math.isfinite(v):
         return None
     return v
 
 
-def as_json(result: Result, i=0):
-    """Device ``i`` as a JSON text: name, params (SI), derived (SI), warnings.
+def row_document(result: Result, i=0):
+    """Device ``i`` as plain data: name, params (SI), units, derived (SI), warnings.
 
-    Non-finite numbers become ``null``: an ideal ohmic contact's velocity
+    Non-finite numbers become None: an ideal ohmic contact's velocity
     (infinite; ``contact`` says ``"ohmic"``) and a BV that was not found.
     """
     row = result.row(i)
@@ -293,6 +312,10 @@ def as_json(result: Result, i=0):
         s = row["derived"][side]
         v = s["contact_velocity"]
         s["contact"] = "ohmic" if math.isinf(v) else ("reflecting" if v == 0 else "finite")
-    out = {"name": row["name"], "params": row["params"], "units": {k: UNITS[k] for k in PARAMETERS},
-           "derived": row["derived"], "warnings": row["warnings"]}
-    return json.dumps(_json_safe(out), indent=2, sort_keys=False, allow_nan=False) + "\n"
+    return json_safe({"name": row["name"], "params": row["params"], "units": {k: UNITS[k] for k in PARAMETERS},
+                      "derived": row["derived"], "warnings": row["warnings"]})
+
+
+def as_json(result: Result, i=0):
+    """Device ``i`` as a JSON text (see :func:`row_document`)."""
+    return json.dumps(row_document(result, i), indent=2, allow_nan=False) + "\n"

@@ -6,7 +6,7 @@ curve, and one diode per capacitance bias, each with its own source carrying
 an AC stimulus. The AC admittance Y gives the junction capacitance after the
 series RS is taken off: Zj = 1/Y - RS, C = Im(1/Zj) / omega.
 
-Tolerances are tightened (RELTOL 1e-6, ABSTOL 1e-18, VNTOL 1e-9) so that the
+Tolerances are tightened (RELTOL 1e-6, ABSTOL 1e-24, VNTOL 1e-9) so that the
 simulator's own convergence error stays well below the 1e-3 comparison.
 """
 
@@ -38,7 +38,7 @@ def _deck(library_text, names, dc_volts, cap_volts, temperature_c, gmin, out_dc,
         for j, v in enumerate(cap_volts):
             lines.append(f"VC{k}_{j} c{k}_{j} 0 DC {float(v)!r} AC 1")
             lines.append(f"DAC{k}_{j} c{k}_{j} 0 {name}")
-    lines.append(f".options temp={float(temperature_c)!r} gmin={gmin!r} reltol=1e-6 abstol=1e-18 vntol=1e-9")
+    lines.append(f".options temp={float(temperature_c)!r} gmin={gmin!r} reltol=1e-6 abstol=1e-24 vntol=1e-9")
     dc_vecs = " ".join(f"i(VM{k})" for k in range(len(names)))
     ac_vecs = " ".join(f"i(VC{k}_{j})" for k in range(len(names)) for j in range(len(cap_volts)))
     lines += [".control", "set wr_singlescale", "set wr_vecnames", "option numdgt=15"]
