@@ -17,7 +17,7 @@ import numpy as np
 
 from . import materials
 from .device import Device, Side
-from .errors import InputError
+from .errors import InputError, Problems
 from .textio import read_text
 from .units import parse_quantity
 
@@ -167,7 +167,7 @@ def _column(columns, key, n):
     return np.full(n, default)
 
 
-def assemble(columns, *, sources=None, rows=None):
+def assemble(columns, *, sources=None, rows=None, problems=None):
     """Check SI columns and build a :class:`Device`.
 
     Parameters
@@ -180,30 +180,35 @@ def assemble(columns, *, sources=None, rows=None):
         The file each row came from, for messages.
     rows : sequence of int, optional
         The line number of each row in its file, for messages.
+    problems : modelgen.errors.Problems, optional
+        Collects broken rules row by row (for tables). Without it the first
+        broken rule raises.
 
     Raises
     ------
     InputError
-        For the first row that breaks a rule, naming its file, row and key.
+        A required column missing (always), or, without ``problems``, the
+        first row that breaks a rule, naming its file, row and key.
     """
-    n = len(columns["name"])
+    n = len(columns["name"]) if "name" in columns else len(next(iter(columns.values())))
     sources = tuple(sources) if sources is not None else (None,) * n
-
-    def fail(mask, key, message):
-        if np.any(mask):
-            i = int(np.flatnonzero(mask)[0])
-            raise InputError(message, file=sources[i], row=None if rows is None else rows[i], key=key)
+    if problems is None:
+        problems = Problems(n, sources=sources, rows=rows)
+    fail = problems.add
 
     for key in _REQUIRED:
         if key not in columns:
-            fail(np.ones(n, bool), key, "required key is missing")
-    for i, name in enumerate(columns["name"]):
-        check_name(name, file=sources[i], row=None if rows is None else rows[i])
+            raise InputError("required key is missing", file=sources[0] if n else None, key=key)
+    names = tuple(columns["name"])
+    bad_name = np.array([not (isinstance(x, str) and _NAME.match(x)) for x in names], bool)
+    if bad_name.any():
+        shown = np.array([repr(x) if isinstance(x, str) and len(x) <= 40 else "the given value" for x in names],
+                         dtype=object)
+        fail(bad_name, "name", "{x} is not a valid model name: it must be " + NAME_RULE, {"x": shown})
     mats = tuple(columns.get("material.name", ("silicon",) * n))
-    for i, m in enumerate(mats):
-        if m not in materials.MATERIALS:
-            fail(np.arange(n) == i, "material",
-                 f"unknown material {m!r}; known: {', '.join(sorted(materials.MATERIALS))}")
+    known = sorted(materials.MATERIALS)
+    fail(~np.isin(np.asarray(mats, dtype=object), known), "material",
+         "unknown material {m!r}; known: " + ", ".join(known), {"m": np.asarray(mats, dtype=object)})
     profile = np.asarray(columns.get("profile", ("abrupt",) * n))
     linear = profile == "linear"
 
@@ -233,10 +238,12 @@ def assemble(columns, *, sources=None, rows=None):
     fail(linear & np.isnan(grading), "grading", "a linear profile needs grading (e.g. \"1e20 cm^-4\")")
     fail(~linear & ~np.isnan(grading), "grading", "grading applies only to profile = \"linear\"")
     per, xj = num["perimeter"], num["junction_depth"]
-    fail(np.isnan(per) != np.isnan(xj), "perimeter" if np.isnan(xj).any() else "junction_depth",
+    fail(np.isnan(per) & ~np.isnan(xj), "junction_depth",
+         "perimeter and junction_depth go together (the sidewall area is perimeter x junction_depth)")
+    fail(~np.isnan(per) & np.isnan(xj), "perimeter",
          "perimeter and junction_depth go together (the sidewall area is perimeter x junction_depth)")
     eps_r = num["material.relative_permittivity"]
-    eps_default = np.array([materials.get(m).RELATIVE_PERMITTIVITY for m in mats])
+    eps_default = np.array([materials.MATERIALS.get(m, materials.silicon).RELATIVE_PERMITTIVITY for m in mats])
 
     def side(s):
         return Side(**{k: num[f"{s}.{k}"] for k in _SIDE_KEYS})
@@ -254,6 +261,7 @@ def assemble(columns, *, sources=None, rows=None):
         reference_temperature=num["temperature"],
         lifetime_exponent=num["lifetime_temperature_exponent"],
         p=side("p"), n=side("n"), source=sources,
+        line=tuple(rows) if rows is not None else (),
     )
 
 

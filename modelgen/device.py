@@ -66,6 +66,7 @@ class Device:
     recombination_lifetime : lifetime for the depletion-region current [s] (NaN = lighter side's).
     p, n : the two sides.
     source : where each device came from (file name), for messages and headers.
+    line : the line number of each device in its file (tables), for messages.
     """
 
     name: tuple
@@ -89,13 +90,17 @@ class Device:
     p: Side
     n: Side
     source: tuple = field(default=())
+    line: tuple = field(default=())
 
     def __len__(self):
         return len(self.name)
 
     def row(self, i):
         """Device ``i`` alone, as a Device of length 1."""
-        sl = slice(i, i + 1)
+        return self.take(slice(i, i + 1))
+
+    def take(self, sl):
+        """The devices selected by ``sl`` (a slice, index array or bool mask)."""
 
         def take(obj, cls):
             kw = {}
@@ -104,7 +109,13 @@ class Device:
                 if isinstance(v, Side):
                     kw[f.name] = take(v, Side)
                 elif isinstance(v, tuple):
-                    kw[f.name] = v[sl] if len(v) else v
+                    if not len(v):
+                        kw[f.name] = v
+                    elif isinstance(sl, slice):
+                        kw[f.name] = v[sl]
+                    else:
+                        idx = np.flatnonzero(sl) if np.asarray(sl).dtype == bool else np.asarray(sl)
+                        kw[f.name] = tuple(v[j] for j in idx)
                 else:
                     kw[f.name] = v[sl]
             return cls(**kw)

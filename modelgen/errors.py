@@ -53,3 +53,58 @@ class InputError(ModelgenError):
             parts.append(self.key)
         parts.append(self.message)
         return ": ".join(parts)
+
+
+class Problems:
+    """Rules broken across a table of devices: each a row mask, a key and a message.
+
+    With ``collect=False`` (one device, or a table that must be all good) the
+    first problem raises its :class:`InputError` at once. With
+    ``collect=True`` every problem is kept and :meth:`errors` lists one
+    located error per broken rule and row, in row order.
+
+    ``message`` may be a format string filled per row from ``values``
+    (arrays of the table's length).
+    """
+
+    def __init__(self, n, *, sources=None, rows=None, collect=False):
+        self.n = n
+        self.sources = tuple(sources) if sources is not None and len(sources) else (None,) * n
+        self.rows = tuple(rows) if rows is not None and len(rows) else (None,) * n
+        self.collect = collect
+        self.found = []
+
+    def _error(self, i, key, message, values):
+        text = message.format(**{k: v[i] for k, v in values.items()}) if values else message
+        return InputError(text, file=self.sources[i], row=self.rows[i], key=key)
+
+    def add(self, mask, key, message, values=None):
+        """Record (or raise, when not collecting) the rule ``key`` broken where ``mask``."""
+        import numpy as np
+
+        mask = np.broadcast_to(np.asarray(mask, bool), (self.n,))
+        if not mask.any():
+            return
+        if not self.collect:
+            raise self._error(int(np.flatnonzero(mask)[0]), key, message, values)
+        self.found.append((mask.copy(), key, message, values))
+
+    @property
+    def bad(self):
+        """Rows with at least one problem (bool array)."""
+        import numpy as np
+
+        out = np.zeros(self.n, bool)
+        for mask, *_ in self.found:
+            out |= mask
+        return out
+
+    def errors(self):
+        """Every problem as a located InputError, ordered by row, then as found."""
+        import numpy as np
+
+        items = []
+        for order, (mask, key, message, values) in enumerate(self.found):
+            for i in np.flatnonzero(mask):
+                items.append((int(i), order, self._error(int(i), key, message, values)))
+        return [e for _, _, e in sorted(items, key=lambda t: (t[0], t[1]))]

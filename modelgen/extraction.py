@@ -15,7 +15,7 @@ import numpy as np
 
 from . import materials
 from .device import Device
-from .errors import InputError
+from .errors import InputError, Problems
 from .physics import breakdown, diffusion, junction, recombination, resistance
 
 #: Order of the card parameters.
@@ -95,22 +95,17 @@ def _given(x):
     return ~np.isnan(x)
 
 
-def _fail(device, mask, key, message, values=None):
-    """Raise an InputError for the first device where ``mask`` holds."""
-    if mask.any():
-        i = int(np.flatnonzero(mask)[0])
-        text = message.format(**{k: v[i] for k, v in (values or {}).items()})
-        src = device.source[i] if len(device.source) else None
-        raise InputError(text, file=src, key=key, row=None)
-
-
-def derive(device: Device) -> Result:
+def derive(device: Device, problems: Problems | None = None) -> Result:
     """Evaluate the physics of every device and return the card parameters.
 
     Parameters
     ----------
     device : Device
         Devices in SI units (see :mod:`modelgen.device`).
+    problems : modelgen.errors.Problems, optional
+        Collects devices the physics cannot describe, row by row (for
+        tables); their parameters come out NaN or meaningless and must be
+        dropped. Without it the first such device raises.
 
     Returns
     -------
@@ -128,6 +123,12 @@ def derive(device: Device) -> Result:
         raise InputError(f"unknown material {unknown[0]!r}; known: {', '.join(sorted(materials.MATERIALS))}",
                          key="material")
     mat = materials.get("silicon")  # only material so far
+    if problems is None:
+        problems = Problems(len(device), sources=device.source, rows=device.line)
+
+    def _fail(_device, mask, key, message, values=None):
+        problems.add(mask, key, message, values)
+
     findings = []
     t = device.temperature
     t_ref = device.reference_temperature  # where the user's values (ni, bandgap, lifetime, resistivity) hold
