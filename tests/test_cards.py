@@ -16,6 +16,15 @@ def test_numbers_round_trip_exactly(x):
     assert "e" in text and float(text) == x
 
 
+@settings(deadline=None, max_examples=500)
+@given(st.floats(allow_nan=False, allow_infinity=False))
+def test_fast_formatting_equals_numpy_scientific_unique(x):
+    # numpy's format_float_scientific(unique=True) is the reference for the shortest exponent form
+    import numpy as np
+    assert cards.format_number(x) == np.format_float_scientific(x, unique=True, trim="-", exp_digits=2)
+    assert cards.format_numbers([x, x, float("nan")]) == [cards.format_number(x)] * 2 + [None]
+
+
 def test_number_formatting_examples():
     assert cards.format_number(0.5) == "5e-01"
     assert cards.format_number(1e-15) == "1e-15"

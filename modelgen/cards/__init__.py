@@ -86,11 +86,59 @@ _SIDEWALL = ("JSW", "CJSW", "PHP", "MJSW", "FCS", "PJ")
 _OPTIONAL = ("TCV", "TRS1", "TRS2")
 
 
+def card_columns(result: Result, dialect, overrides=None):
+    """The card parameters of every device, as the dialect carries them.
+
+    Parameters
+    ----------
+    result : Result
+    dialect : str
+    overrides : dict, optional
+        Name -> value (or array over devices) replacing or adding parameters,
+        e.g. fitted EG, XTI, TCV, TRS1, TRS2; TCV and TRS1/2 appear only when
+        supplied.
+
+    Returns
+    -------
+    (columns, params) :
+        ``columns``: list of ``(NAME, array)`` in card order, NaN where a
+        device's card leaves the parameter off (BV when no breakdown was
+        found, sidewall terms when there is no sidewall); ``params``: every
+        parameter by name, including those the dialect cannot carry.
+    """
+    d = DIALECTS[dialect]
+    n = len(result)
+    p = {k: np.asarray(v, float) for k, v in result.params.items()}
+    p["TNOM"] = np.round(result.derived["temperature"] - 273.15, 9)
+    for k, v in (overrides or {}).items():
+        p[k] = np.broadcast_to(np.asarray(v, float), (n,))
+    if d.sidewall == "split":
+        total, bottom = result.derived["junction_area"], result.derived["bottom_area"]
+        split = total > bottom
+        f = bottom / total
+        nan = np.nan
+        p.update(JSW=np.where(split, p["IS"] * (1 - f), nan), IS=np.where(split, p["IS"] * f, p["IS"]),
+                 CJSW=np.where(split, p["CJO"] * (1 - f), nan), CJO=np.where(split, p["CJO"] * f, p["CJO"]),
+                 PHP=np.where(split, p["VJ"], nan), MJSW=np.where(split, p["M"], nan),
+                 FCS=np.where(split, p["FC"], nan), PJ=np.where(split, 1.0, nan))
+    no_bv = ~np.isfinite(p["BV"])
+    p["IBV"] = np.where(no_bv, np.nan, p["IBV"])
+    columns = [(name, p[name]) for name in d.carries if name in p]
+    return columns, p
+
+
+def _left_out(d, p, i):
+    lines = []
+    if not math.isfinite(p["BV"][i]) and "BV" in d.carries:
+        lines.append("BV, IBV: no avalanche breakdown found below 2e6 V/cm")
+    for name in PARAMETERS:
+        if name not in d.carries and name != "IBV" and math.isfinite(p[name][i]):
+            lines.append(f"{name}={format_number(p[name][i])} ({d.cost.get(name, 'not carried')})")
+    return lines
+
+
 def card_values(result: Result, i, dialect, overrides=None):
     """The parameters of device ``i`` as dialect ``dialect`` carries them.
-
-    ``overrides`` (name -> value) replace or add parameters, e.g. fitted EG,
-    XTI, TCV, TRS1, TRS2; TCV and TRS1/2 appear only when supplied.
 
     Returns
     -------
@@ -98,46 +146,57 @@ def card_values(result: Result, i, dialect, overrides=None):
         ``values``: list of ``(NAME, float)`` in card order; ``left_out``:
         lines saying what the dialect cannot carry and what that costs.
     """
-    d = DIALECTS[dialect]
-    row = result.row(i)
-    p = dict(row["params"])
-    p["TNOM"] = round(row["derived"]["temperature"] - 273.15, 9)
-    p.update(overrides or {})
-    total = row["derived"]["junction_area"]
-    side = total - row["derived"]["bottom_area"]
-    split = d.sidewall == "split" and side > 0
-    if split:
-        f = row["derived"]["bottom_area"] / total
-        p.update(JSW=p["IS"] * (1 - f), IS=p["IS"] * f, CJSW=p["CJO"] * (1 - f), CJO=p["CJO"] * f,
-                 PHP=p["VJ"], MJSW=p["M"], FCS=p["FC"], PJ=1.0)
-    values, left_out = [], []
-    for name in d.carries:
-        if (name in _SIDEWALL and not split) or (name in _OPTIONAL and name not in p):
-            continue
-        v = p[name]
-        if name in ("BV", "IBV") and not math.isfinite(p["BV"]):
-            if name == "BV":
-                left_out.append("BV, IBV: no avalanche breakdown found below 2e6 V/cm")
-            continue
-        values.append((name, v))
-    for name in PARAMETERS:
-        if name not in d.carries and not (name == "IBV" and not math.isfinite(p["BV"])):
-            if math.isfinite(p[name]):
-                left_out.append(f"{name}={format_number(p[name])} ({d.cost.get(name, 'not carried')})")
-    return values, left_out
+    columns, p = card_columns(result, dialect, overrides)
+    values = [(k, float(v[i])) for k, v in columns if math.isfinite(v[i])]
+    return values, _left_out(DIALECTS[dialect], p, i)
+
+
+def _exponent_form(r):
+    """Python's shortest round-trip repr of a float, rewritten in exponent form."""
+    if "e" in r or "n" in r:  # already exponent form (or inf/nan, refused by the caller)
+        return r
+    sign = ""
+    if r[0] == "-":
+        sign, r = "-", r[1:]
+    ip, _, fp = r.partition(".")
+    if fp == "0":
+        fp = ""
+    ip_digits = ip.lstrip("0")
+    if ip_digits:
+        exp = len(ip_digits) - 1
+        digits = ip_digits + fp
+    else:
+        stripped = fp.lstrip("0")
+        if not stripped:
+            return sign + "0e+00"
+        exp = -(len(fp) - len(stripped)) - 1
+        digits = stripped
+    digits = digits.rstrip("0")
+    mantissa = digits[0] + ("." + digits[1:] if len(digits) > 1 else "")
+    return f"{sign}{mantissa}e{'+' if exp >= 0 else '-'}{abs(exp):02d}"
 
 
 def format_number(x):
     """A float in exponent form with the fewest digits that read back exactly.
 
     ``1e-15`` -> ``1e-15``, ``0.5`` -> ``5e-01``, ``2.3234916272313127e-15``
-    -> ``2.3234916272313127e-15``. Raises ValueError for non-finite values
-    (they never belong on a card).
+    -> ``2.3234916272313127e-15`` (the same text as numpy's
+    ``format_float_scientific(x, unique=True, trim='-', exp_digits=2)``, made
+    from Python's shortest repr, which is faster). Raises ValueError for
+    non-finite values (they never belong on a card).
     """
     x = float(x)
     if not math.isfinite(x):
         raise ValueError(f"non-finite value {x!r} cannot go on a card")
-    return np.format_float_scientific(x, unique=True, trim="-", exp_digits=2)
+    return _exponent_form(repr(x))
+
+
+def format_numbers(values):
+    """:func:`format_number` over an array; NaN gives None. Each distinct value is formatted once."""
+    v = np.asarray(values, float)
+    uniq, inverse = np.unique(v, return_inverse=True)
+    texts = [None if not math.isfinite(u) else _exponent_form(repr(u)) for u in uniq.tolist()]
+    return [texts[k] for k in inverse.ravel().tolist()]
 
 
 _CONTROL = re.compile(r"[\x00-\x1f\x7f-\x9f\u2028\u2029]")
@@ -188,7 +247,8 @@ def _models_lines(result):
     return lines
 
 
-def _block(result, i, dialect, inputs, with_models, overrides=None, extra=()):
+def _card_dict(result, i, dialect, inputs, with_models, overrides=None, extra=()):
+    """What the templates need for one card: header and note lines, name, formatted params."""
     header, row = _card_header(result, i, dialect, inputs)
     if with_models:
         header += _models_lines(result) + comment_lines(CAUTION)
@@ -202,9 +262,13 @@ def _block(result, i, dialect, inputs, with_models, overrides=None, extra=()):
         notes = comment_lines(f"left out, the {dialect} set cannot carry them:")
         for s in left_out:
             notes += comment_lines("  " + s)
-    params = [(k, format_number(v)) for k, v in values]
-    return _environment().get_template(DIALECTS[dialect].template).render(
-        header=header, notes=notes, name=row["name"], params=params)
+    return {"header": header, "notes": notes, "name": row["name"],
+            "params": [(k, format_number(v)) for k, v in values]}
+
+
+def _block(result, i, dialect, inputs, with_models, overrides=None, extra=()):
+    card = _card_dict(result, i, dialect, inputs, with_models, overrides, extra)
+    return _environment().get_template(DIALECTS[dialect].template).render(card=card)
 
 
 def card(result: Result, i=0, dialect="spice3", inputs=None, overrides=None, extra=()):
@@ -265,7 +329,7 @@ def library(parts, dialect="spice3", title="diode model library", extra=()):
             where = f" in section {section}" if section else ""
             raise ValueError(f"model name {name} is used twice{where}")
         seen.add((section, name.upper()))
-        sections.setdefault(section, []).append(_block(result, i, dialect, inputs, with_models=False).rstrip("\n"))
+        sections.setdefault(section, []).append(_card_dict(result, i, dialect, inputs, with_models=False))
     first = parts[0][1] if parts else None
     header = comment_lines(f"{title}: {sum(len(v) for v in sections.values())} cards, modelgen {__version__}, "
                            f"dialect {d.name} ({d.title})")

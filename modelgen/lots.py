@@ -1,0 +1,348 @@
+"""Lots: a table of devices (CSV, or a TOML/JSON list) to a model library.
+
+A CSV table has one device per row. Its columns are the description's keys
+flattened with dots (``p.doping``, ``n.lifetime``, ``area``, ``material.ni``)
+and a unit in brackets applies to the whole column (``p.doping [cm^-3]``):
+those cells are plain numbers, converted with one factor per column. A
+column without a unit holds a quantity string per cell (``"1e17 cm^-3"``),
+parsed cell by cell (slower). An empty cell leaves an optional key out for
+that row. Constant columns can be given once (``--set KEY=VALUE``).
+
+The physics runs over the whole table at once, in chunks of
+:data:`CHUNK` rows to bound memory; one row gives the same numbers as the
+same device alone.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import re
+import tomllib
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import description, extraction
+from .description import KEYS
+from .errors import InputError, Problems
+from .textio import read_text
+from .units import apply_factor, parse_quantity, unit_factor
+
+#: Rows per physics chunk (bounds the breakdown solver's memory).
+CHUNK = 20000
+_HEADER = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_.]*)\s*(?:\[\s*([^\]]*?)\s*\])?\s*$")
+
+
+@dataclass
+class Table:
+    """Raw SI columns of a table, with where each row came from."""
+
+    columns: dict
+    lines: np.ndarray      # line number of each row in the file (1-based, header = 1)
+    file: str
+    problems: Problems
+
+
+def _is_numeric_kind(kind):
+    return kind not in ("text", "choice", "number")
+
+
+def _convert_column(key, cells, unit, lines, file, problems):
+    """SI values of one column; bad cells recorded in ``problems``."""
+    spec = KEYS[key]
+    cells = np.asarray(cells, dtype=object)
+    empty = np.array([c.strip() == "" for c in cells], bool)
+    if spec.kind in ("text", "choice"):
+        if unit:
+            raise InputError(f"column {key!r} takes no unit", file=file, key=key)
+        vals = np.array([c.strip() for c in cells], dtype=object)
+        if spec.kind == "choice":
+            bad = ~empty & ~np.isin(vals, spec.choices)
+            problems.add(bad, key, "{v!r} is not one of: " + ", ".join(spec.choices), {"v": vals})
+        if spec.default is not None:
+            vals = np.where(empty, spec.default, vals)
+        elif empty.any():
+            problems.add(empty, key, "empty cell: a value is required")
+        return vals
+    out = np.full(len(cells), np.nan)
+    if spec.kind == "number" or unit is not None:
+        if unit is not None and spec.kind == "number":
+            raise InputError(f"column {key!r} is a plain number and takes no unit", file=file, key=key)
+        scale, offset = (1.0, 0.0) if spec.kind == "number" else _factor(key, unit, file)
+        text = np.where(empty, "nan", cells).astype(str)
+        try:
+            x = text.astype(float)
+        except ValueError:
+            x = np.array([_float_or_none(c) for c in text], dtype=float)
+        bad = ~empty & ~np.isfinite(x)
+        if key.endswith(".surface_recombination"):
+            ohmic = np.char.lower(np.char.strip(text)) == "ohmic"
+            bad &= ~ohmic
+            x = np.where(ohmic, np.inf, x)
+        problems.add(bad, key, "not a finite number: {v!r}", {"v": cells})
+        with np.errstate(invalid="ignore"):
+            out = np.where(np.isinf(x), x, apply_factor(x, scale, offset))
+        out[bad] = np.nan
+        return out
+    # no unit in the header: each cell carries its own (the slower path)
+    messages = np.full(len(cells), "", dtype=object)
+    for i in np.flatnonzero(~empty):
+        c = cells[i].strip()
+        if key.endswith(".surface_recombination") and c.lower() == "ohmic":
+            out[i] = math.inf
+            continue
+        try:
+            out[i] = parse_quantity(c, spec.kind)
+        except InputError as e:
+            messages[i] = e.message
+    problems.add(messages != "", key, "{m}", {"m": messages})
+    return out
+
+
+def _float_or_none(text):
+    try:
+        return float(text)
+    except ValueError:
+        return math.nan
+
+
+def _factor(key, unit, file):
+    try:
+        return unit_factor(unit, KEYS[key].kind)
+    except ValueError as e:
+        raise InputError(f"column unit: {e}", file=file, key=key) from None
+
+
+def read_csv(path, *, sets=None, name_pattern=None, collect=True):
+    """Read a CSV lot table into SI columns.
+
+    Parameters
+    ----------
+    path : str
+        The CSV file. The first line names the columns.
+    sets : dict, optional
+        ``key -> value as text``: a constant column (``--set``); it must not
+        also be a column.
+    name_pattern : str, optional
+        Model names when the table has no ``name`` column: a Python format
+        string with ``{row}`` (the line number) and ``{index}`` (0-based),
+        e.g. ``"DLOT{row:05d}"``.
+    collect : bool
+        Collect bad cells row by row (True) or raise at the first.
+
+    Returns
+    -------
+    Table
+
+    Raises
+    ------
+    InputError
+        Problems with the file as a whole: unreadable, no header, an unknown
+        or repeated column, a unit that does not fit its column.
+    """
+    path = str(path)
+    text = read_text(path, "table")
+    reader = csv.reader(io.StringIO(text))
+    try:
+        header = next(reader)
+    except StopIteration:
+        raise InputError("empty table: the first line must name the columns", file=path) from None
+    body = [r for r in reader]
+    lines = np.arange(2, 2 + len(body))
+    keep = [k for k, r in enumerate(body) if any(c.strip() for c in r)]  # blank lines are skipped
+    body = [body[k] for k in keep]
+    lines = lines[keep]
+    n = len(body)
+    if n == 0:
+        raise InputError("the table has no rows", file=path)
+    problems = Problems(n, sources=(path,) * n, rows=lines, collect=collect)
+    width = len(header)
+    short = np.array([len(r) != width for r in body], bool)
+    problems.add(short, "columns", "has {k} cells where the header has " + str(width),
+                 {"k": np.array([len(r) for r in body])})
+    body = [r + [""] * (width - len(r)) if len(r) < width else r[:width] for r in body]
+    cols = list(zip(*body)) if n else [()] * width
+    columns = {}
+    for j, cell in enumerate(header):
+        m = _HEADER.match(cell)
+        if not m:
+            raise InputError(f"column {j + 1}: {cell!r} is not 'key' or 'key [unit]'", file=path)
+        key, unit = m.group(1), m.group(2)
+        if key == "material":
+            key = "material.name"
+        if key not in KEYS or key in ("material",):
+            raise InputError(f"unknown column; known keys: {', '.join(sorted(k for k in KEYS if k != 'material'))}",
+                             file=path, key=key)
+        if key in columns:
+            raise InputError("column given twice", file=path, key=key)
+        columns[key] = _convert_column(key, cols[j], unit or None, lines, path, problems)
+    for key, value in (sets or {}).items():
+        if key == "material":
+            key = "material.name"
+        if key not in KEYS:
+            raise InputError("unknown key in --set", file=path, key=key)
+        if key in columns:
+            raise InputError("given both as a column and with --set", file=path, key=key)
+        v = description.convert({key: value}, file="--set")[key]
+        columns[key] = np.array([v] * n, dtype=object if isinstance(v, str) else float)
+    if "name" not in columns:
+        if not name_pattern:
+            raise InputError("no name column: add one, or give --name PATTERN (e.g. \"DLOT{row:05d}\")",
+                             file=path, key="name")
+        try:
+            columns["name"] = np.array([name_pattern.format(row=int(r), index=i) for i, r in enumerate(lines)],
+                                       dtype=object)
+        except (KeyError, IndexError, ValueError) as e:
+            raise InputError(f"--name pattern: {e}; use {{row}} and {{index}}", file=path, key="name") from None
+    names = columns["name"]
+    upper = np.array([str(x).upper() for x in names], dtype=object)
+    _, first, counts = np.unique(upper, return_index=True, return_counts=True)
+    dup = np.ones(n, bool)
+    dup[first] = False
+    dup &= np.isin(upper, upper[first][counts > 1])
+    problems.add(dup, "name", "model name {x!r} is used by an earlier row", {"x": names})
+    return Table(columns=columns, lines=lines, file=path, problems=problems)
+
+
+def read_list(path, *, collect=True):
+    """A TOML (``[[device]]`` tables) or JSON (a list of objects) lot file.
+
+    Each entry is a device description as in a single TOML file; values are
+    quantity strings, parsed one by one.
+    """
+    path = str(path)
+    text = read_text(path, "table")
+    try:
+        if path.lower().endswith(".json"):
+            entries = json.loads(text)
+        else:
+            entries = tomllib.loads(text).get("device")
+    except (json.JSONDecodeError, tomllib.TOMLDecodeError) as e:
+        raise InputError(f"cannot parse: {e}", file=path) from None
+    if not isinstance(entries, list) or not entries or not all(isinstance(e, dict) for e in entries):
+        raise InputError("expected a list of device tables ([[device]] in TOML, a JSON list of objects)",
+                         file=path)
+    n = len(entries)
+    problems = Problems(n, sources=(path,) * n, rows=np.arange(1, n + 1), collect=collect)
+    flats = []
+    for i, entry in enumerate(entries):
+        try:
+            flats.append(description.read_mapping(entry, file=path))
+        except InputError as e:
+            mask = np.arange(n) == i
+            problems.add(mask, e.key, e.message)
+            flats.append({"name": f"BAD{i}"})
+    keys = sorted({k for f in flats for k in f})
+    columns = {}
+    for k in keys:
+        if KEYS[k].kind in ("text", "choice"):
+            default = KEYS[k].default if KEYS[k].default is not None else ""
+            columns[k] = np.array([f.get(k, default) for f in flats], dtype=object)
+        else:
+            columns[k] = np.array([f.get(k, np.nan) for f in flats], dtype=float)
+    return Table(columns=columns, lines=np.arange(1, n + 1), file=path, problems=problems)
+
+
+def read(path, **kw):
+    """:func:`read_csv` or :func:`read_list` by the file's extension."""
+    if str(path).lower().endswith((".toml", ".json")):
+        kw.pop("sets", None), kw.pop("name_pattern", None)
+        return read_list(path, **kw)
+    return read_csv(path, **kw)
+
+
+def derive(table: Table, *, chunk=CHUNK, progress=None):
+    """The physics of every row of ``table``, chunk by chunk.
+
+    Returns
+    -------
+    (Result, good) :
+        The Result over the good rows (those with no problem in the table or
+        in the physics) and the boolean mask of good rows in the table.
+        ``table.problems`` holds every problem found.
+    """
+    problems = table.problems
+    device = description.assemble(table.columns, sources=(table.file,) * len(table.lines),
+                                  rows=tuple(int(x) for x in table.lines), problems=problems)
+    n = len(device)
+    bad = problems.bad
+    parts = []
+    for start in range(0, n, chunk):
+        sl = np.arange(start, min(start + chunk, n))
+        sl = sl[~bad[sl]]
+        if len(sl):
+            sub = device.take(sl)
+            local = Problems(len(sl), sources=sub.source, rows=sub.line, collect=True)
+            res = extraction.derive(sub, problems=local)
+            for mask, key, message, values in local.found:
+                full = np.zeros(n, bool)
+                full[sl[mask]] = True
+                vals = None
+                if values:
+                    vals = {}
+                    for k, v in values.items():
+                        arr = np.empty(n, dtype=object)
+                        arr[sl] = list(v) if isinstance(v, np.ndarray) else v
+                        vals[k] = arr
+                problems.add(full, key, message, vals)
+            parts.append((sl, res))
+        if progress is not None:
+            progress(min(start + chunk, n))
+    good = ~problems.bad
+    return _concatenate(parts, good), good
+
+
+def _concatenate(parts, good):
+    """One Result over the good rows, from chunk results."""
+    keep = []
+    for sl, res in parts:
+        mask = good[sl]
+        keep.append((res, mask))
+    if not keep:
+        return None
+    first = keep[0][0]
+
+    def cat(get):
+        return np.concatenate([np.asarray(get(r))[m] for r, m in keep])
+
+    params = {k: cat(lambda r, k=k: r.params[k]) for k in first.params}
+    derived = {}
+    for k, v in first.derived.items():
+        if isinstance(v, dict):
+            derived[k] = {kk: cat(lambda r, k=k, kk=kk: r.derived[k][kk]) for kk in v}
+        else:
+            derived[k] = cat(lambda r, k=k: r.derived[k])
+    devices = [r.device.take(m) for r, m in keep]
+    device = _concat_devices(devices)
+    findings = []
+    for f_index, f0 in enumerate(first.findings):
+        mask = cat(lambda r, i=f_index: r.findings[i].mask)
+        values = {}
+        for k, v in f0.values.items():
+            values[k] = cat(lambda r, i=f_index, k=k: r.findings[i].values[k]) if isinstance(v, np.ndarray) else v
+        findings.append(extraction.Finding(mask, f0.text, values))
+    return extraction.Result(device=device, params=params, derived=derived, findings=findings,
+                             sources=first.sources)
+
+
+def _concat_devices(devices):
+    from dataclasses import fields
+
+    from .device import Device, Side
+
+    def cat(objs, cls):
+        kw = {}
+        for f in fields(cls):
+            vals = [getattr(o, f.name) for o in objs]
+            if isinstance(vals[0], Side):
+                kw[f.name] = cat(vals, Side)
+            elif isinstance(vals[0], tuple):
+                kw[f.name] = tuple(x for v in vals for x in v)
+            else:
+                kw[f.name] = np.concatenate(vals)
+        return cls(**kw)
+
+    return cat(devices, Device)
