@@ -245,7 +245,7 @@ def derive(device: Device, problems: Problems | None = None) -> Result:
     # breakdown
     bv, e_peak, reach_p, reach_n = breakdown.breakdown_voltage(
         vbi, na, nd, p["thickness"], n["thickness"], np.where(linear, grading, 0.0), linear, eps, t,
-        mat.ionization_coefficients)
+        mat.ionization_coefficients, breakpoint=mat.IONIZATION_BREAKPOINT)
     findings.append(Finding(reach_p | reach_n,
                             "reach-through: the depletion region reaches the {side} contact before avalanche; "
                             "BV = {bv:.4g} V is lower than a thick junction's",

@@ -383,3 +383,64 @@ def row_document(result: Result, i=0):
 def as_json(result: Result, i=0):
     """Device ``i`` as a JSON text (see :func:`row_document`)."""
     return json.dumps(row_document(result, i), indent=2, allow_nan=False) + "\n"
+
+
+def _row_warnings(result):
+    """Per device, the warnings that matter on its own card (notes and cautions go once in the header)."""
+    out = [[] for _ in range(len(result))]
+    for f in result.findings:
+        if f.text.startswith(("note:", "caution:")):
+            continue
+        for i in np.flatnonzero(f.mask).tolist():
+            out[i].append(f.message(i))
+    return out
+
+
+def table_library(result: Result, dialect="spice3", *, title="diode model library", extra=(), section=None,
+                  corner_cards=()):
+    """A library with one card per device of a (large) table, built column-wise.
+
+    Each card's header names its row (file and line) and carries its own
+    warnings; the notes, cautions and what the dialect leaves out are said
+    once in the file header. ``corner_cards`` adds ``(section, name, i,
+    comment)`` cards: device ``i`` again, named ``name``, in section
+    ``section`` (corner libraries).
+    """
+    d = DIALECTS[dialect]
+    if (section or corner_cards) and not d.sections:
+        raise ValueError(f"the {dialect} dialect has no .lib sections")
+    columns, p = card_columns(result, dialect)
+    names = [k for k, _ in columns]
+    texts = [format_numbers(v) for _, v in columns]
+    per_row = list(zip(*texts))
+    warnings = _row_warnings(result)
+    dev = result.device
+    src = [Path(s).name if s else "" for s in dev.source] if len(dev.source) else [""] * len(dev)
+    lines = list(dev.line) if len(dev.line) else [None] * len(dev)
+
+    def card(i, name=None, comment=None):
+        where = f"{src[i]} line {lines[i]}" if lines[i] is not None else src[i]
+        head = comment_lines(f"{name or dev.name[i]}: {where}")
+        if comment:
+            head += comment_lines(comment)
+        for w in warnings[i]:
+            head += comment_lines(w)
+        return {"header": head, "notes": (), "name": name or dev.name[i],
+                "params": [(k, v) for k, v in zip(names, per_row[i]) if v is not None]}
+
+    sections = [{"name": section, "cards": [card(i) for i in range(len(dev))]}]
+    for sec, name, i, comment in corner_cards:
+        sections.append({"name": sec, "cards": [card(i, name, comment)]})
+    left = [k for k in PARAMETERS if k not in d.carries and k != "IBV"]
+    header = comment_lines(f"{title}: {len(dev)} cards, modelgen {__version__}, dialect {d.name} ({d.title})")
+    for line in extra:
+        header += comment_lines(line)
+    if left:
+        header += comment_lines(f"left out, the {d.name} set cannot carry them (values in the summary table): "
+                                + "; ".join(f"{k}: {d.cost.get(k, 'not carried')}" for k in left))
+    notes = sorted({f.text.split(";")[0] for f in result.findings if f.text.startswith("note:") and f.mask.any()})
+    if notes:
+        header += comment_lines("each side's regime (short / medium / long by W/L) is in the summary table; the "
+                                "exact finite-width factor is used for all")
+    header += _models_lines(result) + comment_lines(CAUTION)
+    return _environment().get_template("library.j2").render(header=header, sections=sections)

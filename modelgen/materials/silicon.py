@@ -459,6 +459,10 @@ def bandgap_narrowing(doping):
     return 6.92e-3 * (x + np.sqrt(x * x + 0.5))
 
 
+#: Field where van Overstraeten & de Man's hole coefficients change [V/m] (4e5 V/cm).
+IONIZATION_BREAKPOINT = 4e7
+
+
 def ionization_coefficients(field, temperature=300.0):
     """Impact-ionization coefficients of electrons and holes.
 
@@ -488,13 +492,14 @@ def ionization_coefficients(field, temperature=300.0):
     R. van Overstraeten and H. de Man, "Measurement of the ionization rates in
     diffused silicon p-n junctions", Solid-State Electron. 13, 583 (1970).
     """
-    e_cm = np.asarray(field, dtype=float) / 100.0
+    e = np.asarray(field, dtype=float)
     t = np.asarray(temperature, dtype=float)
     hw = 0.063
     gamma = np.tanh(hw / (2 * K_B * 300.0 / Q)) / np.tanh(hw / (2 * K_B * t / Q))
+    # the coefficients in SI: a [1/m] = 100 a [1/cm], b [V/m] = 100 b [V/cm]
     with np.errstate(divide="ignore", over="ignore"):
-        inv = np.where(e_cm > 0, 1.0 / np.where(e_cm > 0, e_cm, 1.0), np.inf)
-        an = gamma * 7.03e5 * np.exp(-gamma * 1.231e6 * inv)
-        high = e_cm >= 4e5
-        ap = gamma * np.where(high, 6.71e5, 1.582e6) * np.exp(-gamma * np.where(high, 1.693e6, 2.036e6) * inv)
-    return an * 100.0, ap * 100.0
+        u = -gamma / e  # -inf at zero field: exp gives 0
+        an = (gamma * 7.03e7) * np.exp(1.231e8 * u)
+        high = e >= IONIZATION_BREAKPOINT
+        ap = gamma * np.where(high, 6.71e7, 1.582e8) * np.exp(np.where(high, 1.693e8, 2.036e8) * u)
+    return an, ap
