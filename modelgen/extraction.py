@@ -147,10 +147,12 @@ def derive(device: Device, problems: Problems | None = None) -> Result:
         # doping, from resistivity where that was given
         mu_override = side.majority_mobility
         from_rho = np.isnan(side.doping)
+        n_rho = np.full(len(device), np.nan)
+        modelled = np.flatnonzero(from_rho & ~_given(mu_override))  # invert the mobility model only there
+        if len(modelled):
+            n_rho[modelled] = mat.doping_from_resistivity(side.resistivity[modelled], majority, t_ref[modelled])
         with np.errstate(invalid="ignore", divide="ignore"):
-            n_rho = np.where(_given(mu_override), 1.0 / (mat.Q * side.resistivity * mu_override),
-                             mat.doping_from_resistivity(np.where(from_rho, side.resistivity, 1.0), majority,
-                                                         t_ref))
+            n_rho = np.where(_given(mu_override), 1.0 / (mat.Q * side.resistivity * mu_override), n_rho)
         doping = np.where(from_rho, n_rho, side.doping)
         _fail(device, from_rho & ~np.isfinite(doping), f"{name}.resistivity",
               "outside the range of the mobility model (doping 1e12-1e22 cm^-3)")
