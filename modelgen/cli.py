@@ -6,7 +6,8 @@ uses.
 
 Exit status: 0 success; 1 a card failed its simulator check; 2 bad input or
 usage (one line on stderr, no output file written or touched); 3 no
-simulator to check with.
+simulator to check with; 4 a lot table was written with bad rows skipped
+(--keep-going).
 """
 
 from __future__ import annotations
@@ -26,6 +27,32 @@ from .errors import InputError
 EXIT_INPUT = 2
 EXIT_MISMATCH = 1
 EXIT_NO_SIMULATOR = 3
+EXIT_SKIPPED = 4
+
+
+def write_atomic_many(texts):
+    """Write several files so that none is replaced unless all could be written.
+
+    Every text goes to a temporary file beside its target first; only when
+    all are written are they renamed into place.
+    """
+    done = []
+    try:
+        for path, text in texts.items():
+            path = os.path.abspath(path)
+            fd, tmp = tempfile.mkstemp(prefix=".modelgen-", suffix=".tmp", dir=os.path.dirname(path))
+            done.append((tmp, path))
+            with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
+                fh.write(text)
+    except BaseException:
+        for tmp, _ in done:
+            try:
+                os.unlink(tmp)
+            except OSError:
+                pass
+        raise
+    for tmp, path in done:
+        os.replace(tmp, path)
 
 
 def write_atomic(path, text):
@@ -304,6 +331,123 @@ def corners_command(device_file, at, t_from, t_to, t_step, per_corner, dialect, 
             _fail(f"{output}: cannot write: {e.strerror}")
     else:
         click.echo(text, nl=False)
+
+
+@main.command("lots")
+@click.argument("table_file", metavar="TABLE", type=click.Path(dir_okay=False))
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False, writable=True),
+              help="The library file to write (atomically, with the summary files).")
+@click.option("--set", "sets", multiple=True, metavar="KEY=VALUE",
+              help="A constant column, e.g. --set temperature=\"27 degC\" --set n.lifetime=\"2 us\".")
+@click.option("--name", "name_pattern", metavar="PATTERN",
+              help="Model names when the table has no name column: {row} is the line number, {index} the "
+                   "0-based row, e.g. \"DLOT{row:05d}\".")
+@click.option("--dialect", type=click.Choice(sorted(cards.DIALECTS)), default="spice3", show_default=True,
+              help="Simulator dialect of the cards.")
+@click.option("--keep-going", is_flag=True,
+              help="Write the good rows and list the bad ones (exit status 4) instead of writing nothing.")
+@click.option("--summary", "summary_prefix", metavar="PREFIX",
+              help="Summary files PREFIX.csv and PREFIX.json; default: the library's name without its "
+                   "extension, plus .summary.")
+@click.option("--corners", "corner_spec", metavar="SPEC",
+              help="Add slow / typical / fast corner cards in .lib sections (ngspice dialect): three percentiles "
+                   "of IS (\"5,50,95\") or \"3sigma\". The per-row cards then go in section 'lot'.")
+@click.option("--corner-name", default="DCORNER", show_default=True,
+              help="Model name of the corner cards (the same in each corner section).")
+@click.option("-q", "--quiet", is_flag=True, help="No progress bar or summary line on stderr.")
+def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, summary_prefix, corner_spec,
+                 corner_name, quiet):
+    """Turn a table of devices (one per row) into one model library.
+
+    TABLE is a CSV file whose header names the description's keys flattened
+    with dots (p.doping, n.lifetime, area, material.ni, ...), each with an
+    optional unit in brackets for the whole column ("p.doping [cm^-3]");
+    a column without a unit holds quantity strings ("1e17 cm^-3"). A .toml
+    file with [[device]] tables or a .json list of descriptions works too.
+    The physics runs over the whole table at once.
+
+    Besides the library, a summary table (CSV, one row per device, every
+    parameter and the key derived quantities) and a JSON file (the same
+    columns, statistics across rows, the rows skipped) are written.
+
+    Bad rows are reported with their line, column and reason; by default
+    nothing is written if any row is bad. Output is deterministic.
+
+    \b
+    Example:
+      modelgen lots examples/lot_table.csv -o lot.lib --dialect ngspice --corners 5,50,95
+    """
+    from . import lots
+
+    set_values = {}
+    for item in sets:
+        key, eq, value = item.partition("=")
+        if not eq:
+            _fail(f"--set {item!r}: write KEY=VALUE")
+        set_values[key.strip()] = value.strip()
+    try:
+        table = lots.read(table_file, sets=set_values, name_pattern=name_pattern)
+    except InputError as e:
+        _fail(str(e.located(file=table_file)))
+    n = len(table.lines)
+    show = not quiet and sys.stderr.isatty() and n > lots.CHUNK
+    try:
+        if show:
+            with click.progressbar(length=n, label="modelgen: physics", file=sys.stderr) as bar:
+                last = [0]
+
+                def progress(done):
+                    bar.update(done - last[0])
+                    last[0] = done
+
+                result, good = lots.derive(table, progress=progress)
+        else:
+            result, good = lots.derive(table)
+    except InputError as e:
+        _fail(str(e.located(file=table_file)))
+    errors = table.problems.errors()
+    if errors and not keep_going:
+        for e in errors:
+            click.echo(f"modelgen: error: {e}", err=True)
+        click.echo(f"modelgen: {len(np.unique([e.row for e in errors]))} of {n} rows are bad; nothing written "
+                   f"(--keep-going writes the good ones)", err=True)
+        sys.exit(EXIT_INPUT)
+    for e in errors:
+        click.echo(f"modelgen: skipped: {e}", err=True)
+    if result is None:
+        _fail(f"{table_file}: no good rows; nothing written")
+    skipped = [{"row": e.row, "key": e.key, "message": e.message} for e in errors]
+    corner_cards = []
+    try:
+        if corner_spec:
+            from .description import check_name
+
+            check_name(corner_name, key="--corner-name")
+            for section, i, pct in lots.corner_rows(result, corner_spec):
+                corner_cards.append((section, corner_name, i,
+                                     f"corner {section}: the row at the {pct:.4g} th percentile of IS "
+                                     f"({result.device.name[i]}), a real row so its parameters stay consistent"))
+        text = cards.table_library(
+            result, dialect, title=f"diode model library from {os.path.basename(table_file)}",
+            extra=[f"{len(result)} of {n} rows" + (f"; {len(np.unique([e.row for e in errors]))} skipped"
+                                                    if errors else "")],
+            section="lot" if corner_spec else None, corner_cards=corner_cards)
+    except InputError as e:
+        _fail(str(e))
+    except ValueError as e:
+        _fail(f"{e}; --corners needs a dialect with .lib sections (ngspice)")
+    prefix = summary_prefix or os.path.splitext(output)[0] + ".summary"
+    cols = lots.summary_columns(result)
+    outputs = {output: text, prefix + ".csv": lots._csv_text(cols),
+               prefix + ".json": lots.summary_json(cols, lots.statistics(cols), skipped)}
+    try:
+        write_atomic_many(outputs)
+    except OSError as e:
+        _fail(f"cannot write: {e.strerror} ({e.filename})")
+    if not quiet:
+        click.echo(f"modelgen: {len(result)} cards written to {output}; summary in {prefix}.csv and "
+                   f"{prefix}.json" + (f"; {len(skipped)} problems, rows skipped" if skipped else ""), err=True)
+    sys.exit(EXIT_SKIPPED if errors else 0)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -48,7 +48,7 @@ class InputError(ModelgenError):
         if self.file:
             parts.append(str(self.file))
         if self.row is not None:
-            parts.append(f"row {self.row}")
+            parts.append(f"line {self.row}")
         if self.key:
             parts.append(self.key)
         parts.append(self.message)
@@ -70,7 +70,7 @@ class Problems:
     def __init__(self, n, *, sources=None, rows=None, collect=False):
         self.n = n
         self.sources = tuple(sources) if sources is not None and len(sources) else (None,) * n
-        self.rows = tuple(rows) if rows is not None and len(rows) else (None,) * n
+        self.rows = tuple(None if r is None else int(r) for r in rows) if rows is not None and len(rows) else (None,) * n
         self.collect = collect
         self.found = []
 
@@ -100,11 +100,17 @@ class Problems:
         return out
 
     def errors(self):
-        """Every problem as a located InputError, ordered by row, then as found."""
+        """Every problem as a located InputError, ordered by row, then as found.
+
+        Only the first problem of each row and key is kept: a cell that did
+        not parse is not reported again as missing.
+        """
         import numpy as np
 
-        items = []
+        items, seen = [], set()
         for order, (mask, key, message, values) in enumerate(self.found):
-            for i in np.flatnonzero(mask):
-                items.append((int(i), order, self._error(int(i), key, message, values)))
+            for i in np.flatnonzero(mask).tolist():
+                if (i, key) not in seen:
+                    seen.add((i, key))
+                    items.append((i, order, self._error(i, key, message, values)))
         return [e for _, _, e in sorted(items, key=lambda t: (t[0], t[1]))]

@@ -346,3 +346,135 @@ def _concat_devices(devices):
         return cls(**kw)
 
     return cat(devices, Device)
+
+
+#: Derived quantities in the summary table besides the card parameters.
+SUMMARY_DERIVED = ("temperature", "ni", "builtin_voltage", "depletion_width", "junction_area",
+                   "recombination_lifetime", "breakdown_peak_field", "reach_through")
+SUMMARY_SIDE = ("doping", "neutral_width", "lifetime", "diffusion_length", "w_over_l", "regime",
+                "finite_width_factor", "saturation_current_density", "transit_time", "resistance")
+#: Percentiles reported in the statistics.
+PERCENTILES = (1, 5, 25, 50, 75, 95, 99)
+
+
+def summary_columns(result):
+    """Ordered ``name -> array`` of what the summary table holds for each row."""
+    cols = {"name": np.asarray(result.device.name, dtype=object),
+            "line": np.asarray(result.device.line if len(result.device.line) else np.arange(1, len(result) + 1))}
+    for k in extraction.PARAMETERS:
+        cols[k] = result.params[k]
+    for k in SUMMARY_DERIVED:
+        cols[k] = result.derived[k]
+    for side in ("p", "n"):
+        for k in SUMMARY_SIDE:
+            cols[f"{side}.{k}"] = result.derived[side][k]
+    warn = np.zeros(len(result), int)
+    for f in result.findings:
+        if not f.text.startswith(("note:", "caution:")):
+            warn += f.mask
+    cols["warnings"] = warn
+    return cols
+
+
+def _cells(v):
+    """Text cells of one summary column: shortest round-trip floats, '' for NaN."""
+    v = np.asarray(v)
+    if v.dtype.kind == "f":
+        text = list(map(repr, v.tolist()))
+        if not np.isfinite(v).all():
+            bad = ~np.isfinite(v)
+            for i in np.flatnonzero(bad).tolist():
+                text[i] = "" if np.isnan(v[i]) else ("inf" if v[i] > 0 else "-inf")
+        return text
+    if v.dtype.kind == "b":
+        return np.where(v, "true", "false").tolist()
+    return list(map(str, v.tolist()))
+
+
+def _csv_text(cols):
+    out = io.StringIO()
+    w = csv.writer(out, lineterminator="\n")
+    w.writerow(list(cols))
+    w.writerows(zip(*[_cells(v) for v in cols.values()]))
+    return out.getvalue()
+
+
+def statistics(cols):
+    """Median, mean, standard deviation, extremes and percentiles of each numeric column."""
+    stats = {}
+    for k, v in cols.items():
+        v = np.asarray(v)
+        if k == "line" or v.dtype.kind not in "fi" or v.dtype.kind == "b":
+            continue
+        x = v[np.isfinite(v)].astype(float)
+        if not len(x):
+            continue
+        pct = np.percentile(x, PERCENTILES)
+        stats[k] = {"count": int(len(x)), "median": float(np.median(x)), "mean": float(np.mean(x)),
+                    "std": float(np.std(x, ddof=1)) if len(x) > 1 else 0.0,
+                    "min": float(x.min()), "max": float(x.max()),
+                    "percentiles": {str(p): float(q) for p, q in zip(PERCENTILES, pct)}}
+    return stats
+
+
+def summary_json(cols, stats, skipped):
+    """The summary as JSON: every column (a list per key), the statistics, the skipped rows.
+
+    Non-finite numbers are written as null. The columns are encoded by the
+    json module's C encoder (no indentation), the rest indented.
+    """
+    parts = []
+    for k, v in cols.items():
+        v = np.asarray(v)
+        if v.dtype.kind == "f":
+            items = v.tolist()
+            if not np.isfinite(v).all():
+                items = [x if math.isfinite(x) else None for x in items]
+        elif v.dtype.kind in "ib":
+            items = v.tolist()
+        else:
+            items = list(map(str, v.tolist()))
+        parts.append(f"{json.dumps(k)}: {json.dumps(items, allow_nan=False)}")
+    head = json.dumps({"rows": len(cols["name"]), "statistics": stats, "skipped": skipped}, indent=1,
+                      allow_nan=False)
+    return head[:-2] + ',\n "columns": {\n  ' + ",\n  ".join(parts) + "\n }\n}\n"
+
+
+def corner_rows(result, spec):
+    """Rows chosen as slow / typical / fast corners by their saturation current IS.
+
+    ``spec``: ``"P1,P2,P3"`` percentiles (e.g. ``"5,50,95"``) or ``"Ksigma"``
+    (e.g. ``"3sigma"``: the normal distribution's percentiles at -K, 0, +K
+    sigma). Real rows are taken (the one nearest each percentile of IS) so
+    each corner card keeps a physically consistent set of parameters.
+
+    Returns
+    -------
+    list of (section, row index, percentile)
+    """
+    spec = spec.strip().lower()
+    if spec.endswith("sigma"):
+        from scipy.stats import norm
+        try:
+            k = float(spec[:-5])
+        except ValueError:
+            raise InputError(f"--corners {spec!r}: write e.g. 3sigma", key="--corners") from None
+        if not k > 0:
+            raise InputError("--corners: sigma must be positive", key="--corners")
+        pcts = [100 * norm.cdf(-k), 50.0, 100 * norm.cdf(k)]
+    else:
+        try:
+            pcts = [float(x) for x in spec.split(",")]
+        except ValueError:
+            raise InputError(f"--corners {spec!r}: give three percentiles, e.g. 5,50,95, or Ksigma",
+                             key="--corners") from None
+        if len(pcts) != 3 or not (0 <= pcts[0] < pcts[1] < pcts[2] <= 100):
+            raise InputError("--corners: three increasing percentiles within 0-100 (slow, typical, fast)",
+                             key="--corners")
+    order = np.argsort(result.params["IS"], kind="stable")
+    n = len(order)
+    out = []
+    for section, p in zip(("slow", "typical", "fast"), pcts):
+        rank = int(round(p / 100 * (n - 1)))
+        out.append((section, int(order[rank]), p))
+    return out

@@ -72,7 +72,7 @@ def test_number_error_is_an_input_error_with_its_place():
         parse_number("x1", file="lib.txt", line=7, key="IS")
     assert isinstance(e.value, CardSyntaxError)
     assert (e.value.file, e.value.row, e.value.line, e.value.key) == ("lib.txt", 7, 7, "IS")
-    assert str(e.value).startswith("lib.txt: row 7: IS: ")
+    assert str(e.value).startswith("lib.txt: line 7: IS: ")
 
 
 @settings(deadline=None)

@@ -48,7 +48,7 @@ class Dialect:
     sidewall: str
     sections: bool
     cost: dict
-    template: str = "card.j2"
+    template: str = "library.j2"
 
 
 _COST = {
@@ -195,7 +195,8 @@ def format_numbers(values):
     """:func:`format_number` over an array; NaN gives None. Each distinct value is formatted once."""
     v = np.asarray(values, float)
     uniq, inverse = np.unique(v, return_inverse=True)
-    texts = [None if not math.isfinite(u) else _exponent_form(repr(u)) for u in uniq.tolist()]
+    texts = [r if "e" in r else (None if r in ("nan", "inf", "-inf") else _exponent_form(r))
+             for r in map(repr, uniq.tolist())]
     return [texts[k] for k in inverse.ravel().tolist()]
 
 
@@ -268,7 +269,9 @@ def _card_dict(result, i, dialect, inputs, with_models, overrides=None, extra=()
 
 def _block(result, i, dialect, inputs, with_models, overrides=None, extra=()):
     card = _card_dict(result, i, dialect, inputs, with_models, overrides, extra)
-    return _environment().get_template(DIALECTS[dialect].template).render(card=card)
+    # one card is a library with no header and one unnamed section: one template holds the syntax
+    return _environment().get_template(DIALECTS[dialect].template).render(
+        header=[], sections=[{"name": None, "cards": [card]}])
 
 
 def card(result: Result, i=0, dialect="spice3", inputs=None, overrides=None, extra=()):
@@ -338,7 +341,7 @@ def library(parts, dialect="spice3", title="diode model library", extra=()):
     if first is not None:
         header += _models_lines(first)
     header += comment_lines(CAUTION)
-    return _environment().get_template("library.j2").render(
+    return _environment().get_template(d.template).render(
         header=header, sections=[{"name": k, "cards": v} for k, v in sections.items()])
 
 
@@ -443,4 +446,4 @@ def table_library(result: Result, dialect="spice3", *, title="diode model librar
         header += comment_lines("each side's regime (short / medium / long by W/L) is in the summary table; the "
                                 "exact finite-width factor is used for all")
     header += _models_lines(result) + comment_lines(CAUTION)
-    return _environment().get_template("library.j2").render(header=header, sections=sections)
+    return _environment().get_template(d.template).render(header=header, sections=sections)

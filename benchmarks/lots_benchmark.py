@@ -1,0 +1,113 @@
+"""Benchmark: a synthetic lot table to a model library.
+
+Prints, for N rows (default 100,000) and N/10:
+  - rows/s of the physics alone (modelgen.extraction.derive on the table's arrays),
+  - rows/s end to end (`modelgen lots` in a fresh process: CSV in, library and summaries out),
+  - peak memory of that process,
+  - the floor: the same N cards formatted by a bare Python loop (f-strings, no physics),
+  - the ratios the targets speak of.
+
+The lots are invented for the benchmark (a demo scenario, random within plausible ranges).
+Run:  .venv/bin/python benchmarks/lots_benchmark.py [N]
+"""
+
+from __future__ import annotations
+
+import os
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+
+import numpy as np
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+sys.path.insert(0, os.path.dirname(HERE))
+
+from modelgen import extraction, lots  # noqa: E402
+
+HEADER = ("name,area [um^2],perimeter [um],junction_depth [um],p.doping [cm^-3],p.thickness [um],"
+          "p.lifetime [ns],n.doping [cm^-3],n.thickness [um],n.lifetime [us],contact_resistance [ohm]")
+
+
+def synthetic_table(path, n, seed=1):
+    """Write n invented devices: lot-to-lot spread around a switching-diode process."""
+    rng = np.random.default_rng(seed)
+    cols = [
+        np.array([f"DL{i:07d}" for i in range(n)]),
+        rng.uniform(2000, 3000, n), rng.uniform(180, 220, n), rng.uniform(0.7, 0.9, n),
+        10 ** rng.normal(19.7, 0.1, n), rng.uniform(0.7, 0.9, n), rng.lognormal(np.log(2.0), 0.2, n),
+        10 ** rng.normal(16.3, 0.08, n), rng.uniform(3.5, 4.5, n), rng.lognormal(np.log(0.02), 0.2, n),
+        rng.uniform(1.2, 1.8, n),
+    ]
+    with open(path, "w") as fh:
+        fh.write(HEADER + "\n")
+        text = [c if c.dtype.kind == "U" else np.char.mod("%.6g", c) for c in cols]
+        fh.write("\n".join(",".join(row) for row in zip(*[t.tolist() for t in text])) + "\n")
+
+
+def physics_alone(path):
+    table = lots.read_csv(path)
+    from modelgen import description
+    device = description.assemble(table.columns, sources=(path,) * len(table.lines), rows=table.lines)
+    extraction.derive(device.take(slice(0, 10)))  # build the breakdown table outside the timing
+    t = time.perf_counter()
+    result = extraction.derive(device)
+    return time.perf_counter() - t, result
+
+
+def end_to_end(path, out):
+    t = time.perf_counter()
+    proc = subprocess.run([sys.executable, "-m", "modelgen.cli", "lots", path, "-o", out, "-q"],
+                          capture_output=True, text=True, cwd=os.path.dirname(HERE))
+    elapsed = time.perf_counter() - t
+    if proc.returncode != 0:
+        raise SystemExit(proc.stderr)
+    return elapsed, resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024  # MiB (Linux: KiB)
+
+
+def formatting_floor(result):
+    """The same cards by a bare loop: '.model NAME D (' and '+ K=repr(v)' lines, nothing else."""
+    keys = ("IS", "N", "RS", "CJO", "VJ", "M", "FC", "TT", "BV", "IBV", "EG", "XTI")
+    cols = [result.params[k].tolist() for k in keys]
+    names = result.device.name
+    t = time.perf_counter()
+    parts = []
+    for i, name in enumerate(names):
+        parts.append(f".model {name} D (")
+        for k, c in zip(keys, cols):
+            parts.append(f"+ {k}={c[i]!r}")
+        parts.append("+ )")
+    text = "\n".join(parts) + "\n"
+    return time.perf_counter() - t, len(text)
+
+
+def main():
+    n = int(sys.argv[1]) if len(sys.argv) > 1 else 100_000
+    print(f"modelgen lots benchmark, {os.cpu_count()} cores")
+    rows = {}
+    with tempfile.TemporaryDirectory() as tmp:
+        for size in (n // 10, n):
+            csv_path = os.path.join(tmp, f"lots{size}.csv")
+            synthetic_table(csv_path, size)
+            t_phys, result = physics_alone(csv_path)
+            t_e2e, peak = end_to_end(csv_path, os.path.join(tmp, f"lib{size}.lib"))
+            t_floor, _ = formatting_floor(result)
+            rows[size] = (t_phys, t_e2e, peak, t_floor)
+            print(f"N = {size:>8,d}: physics {t_phys:7.3f} s ({size / t_phys:>10,.0f} rows/s)  "
+                  f"end to end {t_e2e:6.2f} s ({size / t_e2e:>9,.0f} rows/s)  peak memory {peak:6.0f} MiB  "
+                  f"bare formatting floor {t_floor:6.3f} s")
+    t_phys, t_e2e, peak, t_floor = rows[n]
+    print(f"targets at N = {n:,d}:")
+    print(f"  end to end {t_e2e:.2f} s (target < 5 s)")
+    print(f"  end to end / bare formatting floor = {t_e2e / t_floor:.1f}x (target <= 4x)")
+    print(f"  end to end / physics alone = {t_e2e / t_phys:.1f}x (target >= 10x)")
+    print(f"  peak memory {peak:.0f} MiB (target < 1024 MiB)")
+    small = rows[n // 10]
+    print(f"  time for 10x rows: {t_e2e / small[1]:.1f}x end to end, {t_phys / small[0]:.1f}x physics "
+          f"(target <= 11x)")
+
+
+if __name__ == "__main__":
+    main()
