@@ -48,7 +48,8 @@ class Dialect:
     sidewall: str
     sections: bool
     cost: dict
-    template: str = "library.j2"
+    template: str = "card.j2"
+    library_template: str = "library.j2"
 
 
 _COST = {
@@ -269,9 +270,7 @@ def _card_dict(result, i, dialect, inputs, with_models, overrides=None, extra=()
 
 def _block(result, i, dialect, inputs, with_models, overrides=None, extra=()):
     card = _card_dict(result, i, dialect, inputs, with_models, overrides, extra)
-    # one card is a library with no header and one unnamed section: one template holds the syntax
-    return _environment().get_template(DIALECTS[dialect].template).render(
-        header=[], sections=[{"name": None, "cards": [card]}])
+    return _environment().get_template(DIALECTS[dialect].template).render(card=card)
 
 
 def card(result: Result, i=0, dialect="spice3", inputs=None, overrides=None, extra=()):
@@ -332,7 +331,7 @@ def library(parts, dialect="spice3", title="diode model library", extra=()):
             where = f" in section {section}" if section else ""
             raise ValueError(f"model name {name} is used twice{where}")
         seen.add((section, name.upper()))
-        sections.setdefault(section, []).append(_card_dict(result, i, dialect, inputs, with_models=False))
+        sections.setdefault(section, []).append(_block(result, i, dialect, inputs, with_models=False))
     first = parts[0][1] if parts else None
     header = comment_lines(f"{title}: {sum(len(v) for v in sections.values())} cards, modelgen {__version__}, "
                            f"dialect {d.name} ({d.title})")
@@ -341,8 +340,8 @@ def library(parts, dialect="spice3", title="diode model library", extra=()):
     if first is not None:
         header += _models_lines(first)
     header += comment_lines(CAUTION)
-    return _environment().get_template(d.template).render(
-        header=header, sections=[{"name": k, "cards": v} for k, v in sections.items()])
+    return _environment().get_template(d.library_template).render(
+        header=header, sections=[{"name": k, "body": "\n".join(v)} for k, v in sections.items()])
 
 
 _ENV = None
@@ -399,6 +398,26 @@ def _row_warnings(result):
     return out
 
 
+_TOKEN = "\x01"
+
+
+def _fill_pattern(dialect, names):
+    """A str.format pattern for one card with these parameters, made by rendering the card template.
+
+    The template is rendered once with placeholder tokens for the header
+    block, the name and each value; the result, braces escaped and tokens
+    turned into fields, is filled for every device. The template stays the
+    one place that holds the card syntax; filling is fast.
+    """
+    token = lambda k: f"{_TOKEN}{k}{_TOKEN}"  # noqa: E731
+    proto = {"header": [token("head")], "notes": [], "name": token("name"),
+             "params": [(k, token(j)) for j, k in enumerate(names)]}
+    text = _environment().get_template(DIALECTS[dialect].template).render(card=proto)
+    text = text.replace("{", "{{").replace("}", "}}")
+    return re.sub(f"{_TOKEN}(\\w+){_TOKEN}", lambda m: "{" + (m.group(1) if not m.group(1).isdigit()
+                                                               else "v" + m.group(1)) + "}", text)
+
+
 def table_library(result: Result, dialect="spice3", *, title="diode model library", extra=(), section=None,
                   corner_cards=()):
     """A library with one card per device of a (large) table, built column-wise.
@@ -407,7 +426,9 @@ def table_library(result: Result, dialect="spice3", *, title="diode model librar
     warnings; the notes, cautions and what the dialect leaves out are said
     once in the file header. ``corner_cards`` adds ``(section, name, i,
     comment)`` cards: device ``i`` again, named ``name``, in section
-    ``section`` (corner libraries).
+    ``section`` (corner libraries). Cards are filled into a pattern made
+    from the card template (:func:`_fill_pattern`), grouped by which
+    parameters they carry.
     """
     d = DIALECTS[dialect]
     if (section or corner_cards) and not d.sections:
@@ -415,25 +436,28 @@ def table_library(result: Result, dialect="spice3", *, title="diode model librar
     columns, p = card_columns(result, dialect)
     names = [k for k, _ in columns]
     texts = [format_numbers(v) for _, v in columns]
-    per_row = list(zip(*texts))
+    present = np.array([[t is not None for t in col] for col in texts]).T if len(texts) else np.zeros((0, 0))
+    patterns = {}
     warnings = _row_warnings(result)
     dev = result.device
-    src = [Path(s).name if s else "" for s in dev.source] if len(dev.source) else [""] * len(dev)
+    src = _CONTROL.sub("", Path(dev.source[0]).name) if len(dev.source) and dev.source[0] else ""
     lines = list(dev.line) if len(dev.line) else [None] * len(dev)
+    rows_text = list(zip(*texts))
 
     def card(i, name=None, comment=None):
-        where = f"{src[i]} line {lines[i]}" if lines[i] is not None else src[i]
-        head = comment_lines(f"{name or dev.name[i]}: {where}")
-        if comment:
-            head += comment_lines(comment)
-        for w in warnings[i]:
-            head += comment_lines(w)
-        return {"header": head, "notes": (), "name": name or dev.name[i],
-                "params": [(k, v) for k, v in zip(names, per_row[i]) if v is not None]}
+        name = name or dev.name[i]  # a checked SPICE identifier
+        where = f"{src} line {lines[i]}" if lines[i] is not None else src
+        head = [f"* {name}: {where}"] + ([f"* {_CONTROL.sub('', comment)}"] if comment else [])
+        head += ["* " + w for w in warnings[i]]
+        key = present[i].tobytes()
+        if key not in patterns:
+            patterns[key] = (_fill_pattern(dialect, [k for k, ok in zip(names, present[i]) if ok]))
+        vals = [t for t in rows_text[i] if t is not None]
+        return patterns[key].format(head="\n".join(head), name=name, **{f"v{j}": v for j, v in enumerate(vals)})
 
-    sections = [{"name": section, "cards": [card(i) for i in range(len(dev))]}]
+    sections = [{"name": section, "body": "".join(card(i) for i in range(len(dev)))}]
     for sec, name, i, comment in corner_cards:
-        sections.append({"name": sec, "cards": [card(i, name, comment)]})
+        sections.append({"name": sec, "body": card(i, name, comment)})
     left = [k for k in PARAMETERS if k not in d.carries and k != "IBV"]
     header = comment_lines(f"{title}: {len(dev)} cards, modelgen {__version__}, dialect {d.name} ({d.title})")
     for line in extra:
@@ -441,9 +465,8 @@ def table_library(result: Result, dialect="spice3", *, title="diode model librar
     if left:
         header += comment_lines(f"left out, the {d.name} set cannot carry them (values in the summary table): "
                                 + "; ".join(f"{k}: {d.cost.get(k, 'not carried')}" for k in left))
-    notes = sorted({f.text.split(";")[0] for f in result.findings if f.text.startswith("note:") and f.mask.any()})
-    if notes:
+    if any(f.text.startswith("note:") and f.mask.any() for f in result.findings):
         header += comment_lines("each side's regime (short / medium / long by W/L) is in the summary table; the "
                                 "exact finite-width factor is used for all")
     header += _models_lines(result) + comment_lines(CAUTION)
-    return _environment().get_template(d.template).render(header=header, sections=sections)
+    return _environment().get_template(d.library_template).render(header=header, sections=sections)
