@@ -10,6 +10,7 @@ from __future__ import annotations
 import json
 import math
 import re
+from operator import itemgetter
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -153,28 +154,28 @@ def card_values(result: Result, i, dialect, overrides=None):
 
 
 def _exponent_form(r):
-    """Python's shortest round-trip repr of a float, rewritten in exponent form."""
-    if "e" in r or "n" in r:  # already exponent form (or inf/nan, refused by the caller)
+    """Python's shortest round-trip repr ``r`` of a finite float, in exponent form.
+
+    A positional repr (1e-4 <= |x| < 1e16) is rewritten digit for digit:
+    '33.87' -> '3.387e+01', '0.0025' -> '2.5e-03'; exponent reprs pass.
+    """
+    if "e" in r:
         return r
     sign = ""
     if r[0] == "-":
         sign, r = "-", r[1:]
     ip, _, fp = r.partition(".")
-    if fp == "0":
-        fp = ""
-    ip_digits = ip.lstrip("0")
-    if ip_digits:
-        exp = len(ip_digits) - 1
-        digits = ip_digits + fp
+    if ip != "0":
+        exp = len(ip) - 1
+        digits = (ip + fp).rstrip("0")
     else:
         stripped = fp.lstrip("0")
         if not stripped:
             return sign + "0e+00"
-        exp = -(len(fp) - len(stripped)) - 1
-        digits = stripped
-    digits = digits.rstrip("0")
-    mantissa = digits[0] + ("." + digits[1:] if len(digits) > 1 else "")
-    return f"{sign}{mantissa}e{'+' if exp >= 0 else '-'}{abs(exp):02d}"
+        exp = len(stripped) - len(fp) - 1
+        digits = stripped.rstrip("0")
+    mantissa = digits[0] + "." + digits[1:] if len(digits) > 1 else digits
+    return sign + mantissa + ("e+%02d" % exp if exp >= 0 else "e-%02d" % -exp)
 
 
 def format_number(x):
@@ -196,8 +197,13 @@ def format_numbers(values):
     """:func:`format_number` over an array; NaN gives None. Each distinct value is formatted once."""
     v = np.asarray(values, float)
     uniq, inverse = np.unique(v, return_inverse=True)
-    texts = [r if "e" in r else (None if r in ("nan", "inf", "-inf") else _exponent_form(r))
-             for r in map(repr, uniq.tolist())]
+    finite = np.isfinite(uniq)
+    texts = [r if "e" in r else _exponent_form(r) for r in map(repr, uniq[finite].tolist())]
+    if not finite.all():
+        full = [None] * len(uniq)
+        for k, t in zip(np.flatnonzero(finite).tolist(), texts):
+            full[k] = t
+        texts = full
     return [texts[k] for k in inverse.ravel().tolist()]
 
 
@@ -388,13 +394,21 @@ def as_json(result: Result, i=0):
 
 
 def _row_warnings(result):
-    """Per device, the warnings that matter on its own card (notes and cautions go once in the header)."""
-    out = [[] for _ in range(len(result))]
+    """Per device, the warnings that matter on its own card (notes and cautions go once in the header).
+
+    Returns a list with, for each device, its warning lines joined by newlines ('' when none).
+    """
+    out = [""] * len(result)
     for f in result.findings:
-        if f.text.startswith(("note:", "caution:")):
+        if f.text.startswith(("note:", "caution:")) or not f.mask.any():
             continue
-        for i in np.flatnonzero(f.mask).tolist():
-            out[i].append(f.message(i))
+        idx = np.flatnonzero(f.mask).tolist()
+        keys = list(f.values)
+        cols = [f.values[k][idx].tolist() if isinstance(f.values[k], np.ndarray) else [f.values[k]] * len(idx)
+                for k in keys]
+        for i, vals in zip(idx, zip(*cols) if keys else [()] * len(idx)):
+            msg = f.text.format(**dict(zip(keys, vals)))
+            out[i] = out[i] + "\n" + msg if out[i] else msg
     return out
 
 
@@ -414,8 +428,7 @@ def _fill_pattern(dialect, names):
              "params": [(k, token(j)) for j, k in enumerate(names)]}
     text = _environment().get_template(DIALECTS[dialect].template).render(card=proto)
     text = text.replace("{", "{{").replace("}", "}}")
-    return re.sub(f"{_TOKEN}(\\w+){_TOKEN}", lambda m: "{" + (m.group(1) if not m.group(1).isdigit()
-                                                               else "v" + m.group(1)) + "}", text)
+    return re.sub(f"{_TOKEN}(\\w+){_TOKEN}", lambda m: "{" + m.group(1) + "}", text)
 
 
 def table_library(result: Result, dialect="spice3", *, title="diode model library", extra=(), section=None,
@@ -436,26 +449,37 @@ def table_library(result: Result, dialect="spice3", *, title="diode model librar
     columns, p = card_columns(result, dialect)
     names = [k for k, _ in columns]
     texts = [format_numbers(v) for _, v in columns]
-    present = np.array([[t is not None for t in col] for col in texts]).T if len(texts) else np.zeros((0, 0))
-    patterns = {}
-    warnings = _row_warnings(result)
-    dev = result.device
-    src = _CONTROL.sub("", Path(dev.source[0]).name) if len(dev.source) and dev.source[0] else ""
-    lines = list(dev.line) if len(dev.line) else [None] * len(dev)
     rows_text = list(zip(*texts))
+    dev = result.device
+    n = len(dev)
+    present = np.isfinite(np.column_stack([v for _, v in columns])) if columns else np.zeros((n, 0), bool)
+    groups, group_of = np.unique(present, axis=0, return_inverse=True)
+    group_of = group_of.ravel()
+    src = _CONTROL.sub("", Path(dev.source[0]).name) if len(dev.source) and dev.source[0] else ""
+    lines = list(dev.line) if len(dev.line) else [None] * n
+    warnings = _row_warnings(result)
+    fills = []
+    for g in groups:
+        cols = [j for j, ok in enumerate(g) if ok]
+        get = itemgetter(*cols) if len(cols) > 1 else (lambda row, j=cols[0]: (row[j],))
+        fills.append((_fill_pattern(dialect, [names[j] for j in cols]).format, get))
+
+    def head(i, name, comment=None):
+        where = f"{src} line {lines[i]}" if lines[i] is not None else src
+        text = f"* {name}: {where}"  # name: a checked SPICE identifier; src: control characters removed
+        if comment:
+            text += "\n* " + _CONTROL.sub("", comment)
+        if warnings[i]:
+            text += "\n* " + warnings[i].replace("\n", "\n* ")  # our own one-line messages
+        return text
 
     def card(i, name=None, comment=None):
-        name = name or dev.name[i]  # a checked SPICE identifier
-        where = f"{src} line {lines[i]}" if lines[i] is not None else src
-        head = [f"* {name}: {where}"] + ([f"* {_CONTROL.sub('', comment)}"] if comment else [])
-        head += ["* " + w for w in warnings[i]]
-        key = present[i].tobytes()
-        if key not in patterns:
-            patterns[key] = (_fill_pattern(dialect, [k for k, ok in zip(names, present[i]) if ok]))
-        vals = [t for t in rows_text[i] if t is not None]
-        return patterns[key].format(head="\n".join(head), name=name, **{f"v{j}": v for j, v in enumerate(vals)})
+        fill, get = fills[group_of[i]]
+        name = name or dev.name[i]
+        return fill(*get(rows_text[i]), head=head(i, name, comment), name=name)
 
-    sections = [{"name": section, "body": "".join(card(i) for i in range(len(dev)))}]
+    body = "".join([card(i) for i in range(n)])
+    sections = [{"name": section, "body": body}]
     for sec, name, i, comment in corner_cards:
         sections.append({"name": sec, "body": card(i, name, comment)})
     left = [k for k in PARAMETERS if k not in d.carries and k != "IBV"]
