@@ -418,6 +418,7 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
         _fail(f"{table_file}: no good rows; nothing written")
     skipped = [{"row": e.row, "key": e.key, "message": e.message} for e in errors]
     corner_cards = []
+    number_cache = {}  # the library and the summary share formatted columns
     try:
         if corner_spec:
             from .description import check_name
@@ -431,15 +432,16 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
             result, dialect, title=f"diode model library from {os.path.basename(table_file)}",
             extra=[f"{len(result)} of {n} rows" + (f"; {len(np.unique([e.row for e in errors]))} skipped"
                                                     if errors else "")],
-            section="lot" if corner_spec else None, corner_cards=corner_cards)
+            section="lot" if corner_spec else None, corner_cards=corner_cards, number_cache=number_cache)
     except InputError as e:
         _fail(str(e))
     except ValueError as e:
         _fail(f"{e}; --corners needs a dialect with .lib sections (ngspice)")
     prefix = summary_prefix or os.path.splitext(output)[0] + ".summary"
     cols = lots.summary_columns(result)
-    outputs = {output: text, prefix + ".csv": lots._csv_text(cols),
-               prefix + ".json": lots.summary_json(cols, lots.statistics(cols), skipped)}
+    csv_text, cells = lots.summary_texts(cols, number_cache)
+    outputs = {output: text, prefix + ".csv": csv_text,
+               prefix + ".json": lots.summary_json(cols, lots.statistics(cols), skipped, cells)}
     try:
         write_atomic_many(outputs)
     except OSError as e:

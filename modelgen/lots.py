@@ -16,7 +16,6 @@ same device alone.
 from __future__ import annotations
 
 import csv
-import io
 import json
 import math
 import re
@@ -53,12 +52,16 @@ def _is_numeric_kind(kind):
 def _convert_column(key, cells, unit, lines, file, problems):
     """SI values of one column; bad cells recorded in ``problems``."""
     spec = KEYS[key]
-    cells = np.asarray(cells, dtype=object)
-    empty = np.array([c.strip() == "" for c in cells], bool)
+    arr = np.array(cells, dtype=str)
+    empty = arr == ""
+    if (arr[~empty] != np.char.strip(arr[~empty])).any():  # rare: cells padded with spaces
+        arr = np.char.strip(arr)
+        empty = arr == ""
+    cells = arr.astype(object)
     if spec.kind in ("text", "choice"):
         if unit:
             raise InputError(f"column {key!r} takes no unit", file=file, key=key)
-        vals = np.array([c.strip() for c in cells], dtype=object)
+        vals = cells
         if spec.kind == "choice":
             bad = ~empty & ~np.isin(vals, spec.choices)
             problems.add(bad, key, "{v!r} is not one of: " + ", ".join(spec.choices), {"v": vals})
@@ -72,7 +75,8 @@ def _convert_column(key, cells, unit, lines, file, problems):
         if unit is not None and spec.kind == "number":
             raise InputError(f"column {key!r} is a plain number and takes no unit", file=file, key=key)
         scale, offset = (1.0, 0.0) if spec.kind == "number" else _factor(key, unit, file)
-        text = np.where(empty, "nan", cells).astype(str)
+        text = arr.copy()
+        text[empty] = "nan"
         try:
             x = text.astype(float)
         except ValueError:
@@ -145,25 +149,29 @@ def read_csv(path, *, sets=None, name_pattern=None, collect=True):
     """
     path = str(path)
     text = read_text(path, "table")
-    reader = csv.reader(io.StringIO(text))
-    try:
-        header = next(reader)
-    except StopIteration:
-        raise InputError("empty table: the first line must name the columns", file=path) from None
-    body = [r for r in reader]
-    lines = np.arange(2, 2 + len(body))
-    keep = [k for k, r in enumerate(body) if any(c.strip() for c in r)]  # blank lines are skipped
-    body = [body[k] for k in keep]
-    lines = lines[keep]
+    raw = text.splitlines()
+    if not raw:
+        raise InputError("empty table: the first line must name the columns", file=path)
+    numbered = [(k + 1, ln) for k, ln in enumerate(raw) if ln.strip(" ,\t")]  # blank lines are skipped
+    if '"' in text:
+        split = list(csv.reader([ln for _, ln in numbered]))
+    else:  # no quoting anywhere: a plain split is the same and faster
+        split = [ln.split(",") for _, ln in numbered]
+    if not numbered or numbered[0][0] != 1:
+        raise InputError("the first line must name the columns", file=path)
+    header, body = split[0], split[1:]
+    lines = np.array([k for k, _ in numbered[1:]], dtype=int)
     n = len(body)
     if n == 0:
         raise InputError("the table has no rows", file=path)
     problems = Problems(n, sources=(path,) * n, rows=lines, collect=collect)
     width = len(header)
-    short = np.array([len(r) != width for r in body], bool)
-    problems.add(short, "columns", "has {k} cells where the header has " + str(width),
-                 {"k": np.array([len(r) for r in body])})
-    body = [r + [""] * (width - len(r)) if len(r) < width else r[:width] for r in body]
+    lens = np.fromiter(map(len, body), int, n)
+    short = lens != width
+    problems.add(short, "columns", "has {k} cells where the header has " + str(width), {"k": lens})
+    for i in np.flatnonzero(short).tolist():
+        r = body[i]
+        body[i] = r + [""] * (width - len(r)) if len(r) < width else r[:width]
     cols = list(zip(*body)) if n else [()] * width
     columns = {}
     for j, cell in enumerate(header):
@@ -349,10 +357,9 @@ def _concat_devices(devices):
 
 
 #: Derived quantities in the summary table besides the card parameters.
-SUMMARY_DERIVED = ("temperature", "ni", "builtin_voltage", "depletion_width", "junction_area",
-                   "recombination_lifetime", "breakdown_peak_field", "reach_through")
-SUMMARY_SIDE = ("doping", "neutral_width", "lifetime", "diffusion_length", "w_over_l", "regime",
-                "finite_width_factor", "saturation_current_density", "transit_time", "resistance")
+SUMMARY_DERIVED = ("temperature", "builtin_voltage", "depletion_width", "reach_through")
+#: Per side: what decides the current (the rest of the derived quantities: ``modelgen card --format json``).
+SUMMARY_SIDE = ("w_over_l", "regime")
 #: Percentiles reported in the statistics.
 PERCENTILES = (1, 5, 25, 50, 75, 95, 99)
 
@@ -376,27 +383,27 @@ def summary_columns(result):
     return cols
 
 
-def _cells(v):
-    """Text cells of one summary column: shortest round-trip floats, '' for NaN."""
-    v = np.asarray(v)
-    if v.dtype.kind == "f":
-        text = list(map(repr, v.tolist()))
-        if not np.isfinite(v).all():
-            bad = ~np.isfinite(v)
-            for i in np.flatnonzero(bad).tolist():
-                text[i] = "" if np.isnan(v[i]) else ("inf" if v[i] > 0 else "-inf")
-        return text
-    if v.dtype.kind == "b":
+def _cells(v, cache=None):
+    """Text cells of one summary column: numbers as the cards write them ('' for NaN), true/false, text."""
+    from .cards import format_numbers
+
+    if isinstance(v, np.ndarray) and v.dtype.kind == "b":
         return np.where(v, "true", "false").tolist()
-    return list(map(str, v.tolist()))
+    if isinstance(v, np.ndarray) and v.dtype.kind == "f":
+        return [t if t is not None else "" for t in format_numbers(v, cache)]
+    return list(map(str, np.asarray(v).tolist()))
+
+
+def summary_texts(cols, cache=None):
+    """The summary as (CSV text, the cells of each column) for :func:`summary_json` to reuse."""
+    cells = {k: _cells(v, cache) for k, v in cols.items()}
+    # the cells are numbers, true/false, SPICE identifiers or words: no quoting needed
+    body = "\n".join(map(",".join, zip(*cells.values())))
+    return ",".join(cols) + "\n" + body + "\n", cells
 
 
 def _csv_text(cols):
-    out = io.StringIO()
-    w = csv.writer(out, lineterminator="\n")
-    w.writerow(list(cols))
-    w.writerows(zip(*[_cells(v) for v in cols.values()]))
-    return out.getvalue()
+    return summary_texts(cols)[0]
 
 
 def statistics(cols):
@@ -417,24 +424,24 @@ def statistics(cols):
     return stats
 
 
-def summary_json(cols, stats, skipped):
+def summary_json(cols, stats, skipped, cells=None):
     """The summary as JSON: every column (a list per key), the statistics, the skipped rows.
 
-    Non-finite numbers are written as null. The columns are encoded by the
-    json module's C encoder (no indentation), the rest indented.
+    Numbers are written with the summary CSV's text (shortest round-trip
+    repr, valid JSON); non-finite ones as null.
     """
+    cells = cells or {k: _cells(v) for k, v in cols.items()}
     parts = []
     for k, v in cols.items():
-        v = np.asarray(v)
-        if v.dtype.kind == "f":
-            items = v.tolist()
-            if not np.isfinite(v).all():
-                items = [x if math.isfinite(x) else None for x in items]
-        elif v.dtype.kind in "ib":
-            items = v.tolist()
+        kind = np.asarray(v).dtype.kind
+        if kind in "fi":
+            c = cells[k]
+            items = "[" + ",".join([x or "null" for x in c]) + "]"
+        elif kind == "b":
+            items = "[" + ",".join(cells[k]) + "]"
         else:
-            items = list(map(str, v.tolist()))
-        parts.append(f"{json.dumps(k)}: {json.dumps(items, allow_nan=False)}")
+            items = json.dumps(cells[k])
+        parts.append(f"{json.dumps(k)}: {items}")
     head = json.dumps({"rows": len(cols["name"]), "statistics": stats, "skipped": skipped}, indent=1,
                       allow_nan=False)
     return head[:-2] + ',\n "columns": {\n  ' + ",\n  ".join(parts) + "\n }\n}\n"

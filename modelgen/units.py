@@ -9,11 +9,17 @@ from __future__ import annotations
 import math
 import re
 
-import pint
+from functools import lru_cache
 
 from .errors import InputError
 
-ureg = pint.UnitRegistry()
+
+@lru_cache(maxsize=1)
+def registry():
+    """The application's one pint registry, made on first use (importing pint costs ~0.3 s)."""
+    import pint
+
+    return pint.UnitRegistry()
 
 #: Kinds of quantity: SI unit the physics uses, and an example for messages.
 KINDS = {
@@ -43,7 +49,7 @@ def _unit(text):
         clean = text
         for a, b in _SPELLINGS:
             clean = clean.replace(a, b)
-        _unit_cache[text] = ureg.parse_units(clean)
+        _unit_cache[text] = registry().parse_units(clean)
     return _unit_cache[text]
 
 
@@ -59,6 +65,7 @@ def unit_factor(unit_text, kind):
         unit = _unit(unit_text)
     except Exception:
         raise ValueError(f"unknown unit {unit_text!r} (expected a {kind}, e.g. \"{example}\")") from None
+    ureg = registry()
     target = ureg.parse_units(si.replace("^", "**"))
     if unit.dimensionality != target.dimensionality:
         raise ValueError(f"{unit_text!r} is not a unit of {kind} (e.g. \"{example}\")")

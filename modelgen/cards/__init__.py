@@ -193,8 +193,14 @@ def format_number(x):
     return _exponent_form(repr(x))
 
 
-def format_numbers(values):
-    """:func:`format_number` over an array; NaN gives None. Each distinct value is formatted once."""
+def format_numbers(values, cache=None):
+    """:func:`format_number` over an array; NaN gives None. Each distinct value is formatted once.
+
+    ``cache`` (a dict) remembers arrays already formatted in this run, so a
+    column shared by a library and its summary is formatted once.
+    """
+    if cache is not None and isinstance(values, np.ndarray) and id(values) in cache:
+        return cache[id(values)][1]
     v = np.asarray(values, float)
     uniq, inverse = np.unique(v, return_inverse=True)
     finite = np.isfinite(uniq)
@@ -204,7 +210,10 @@ def format_numbers(values):
         for k, t in zip(np.flatnonzero(finite).tolist(), texts):
             full[k] = t
         texts = full
-    return [texts[k] for k in inverse.ravel().tolist()]
+    out = [texts[k] for k in inverse.ravel().tolist()]
+    if cache is not None and isinstance(values, np.ndarray):
+        cache[id(values)] = (values, out)  # keep the array alive so its id stays unique
+    return out
 
 
 _CONTROL = re.compile(r"[\x00-\x1f\x7f-\x9f\u2028\u2029]")
@@ -432,7 +441,7 @@ def _fill_pattern(dialect, names):
 
 
 def table_library(result: Result, dialect="spice3", *, title="diode model library", extra=(), section=None,
-                  corner_cards=()):
+                  corner_cards=(), number_cache=None):
     """A library with one card per device of a (large) table, built column-wise.
 
     Each card's header names its row (file and line) and carries its own
@@ -441,14 +450,14 @@ def table_library(result: Result, dialect="spice3", *, title="diode model librar
     comment)`` cards: device ``i`` again, named ``name``, in section
     ``section`` (corner libraries). Cards are filled into a pattern made
     from the card template (:func:`_fill_pattern`), grouped by which
-    parameters they carry.
+    parameters they carry. ``number_cache``: see :func:`format_numbers`.
     """
     d = DIALECTS[dialect]
     if (section or corner_cards) and not d.sections:
         raise ValueError(f"the {dialect} dialect has no .lib sections")
     columns, p = card_columns(result, dialect)
     names = [k for k, _ in columns]
-    texts = [format_numbers(v) for _, v in columns]
+    texts = [format_numbers(v, number_cache) for _, v in columns]
     rows_text = list(zip(*texts))
     dev = result.device
     n = len(dev)
