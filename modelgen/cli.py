@@ -15,7 +15,6 @@ from __future__ import annotations
 import json
 import os
 import sys
-import tempfile
 from dataclasses import replace
 
 import click
@@ -23,57 +22,12 @@ import numpy as np
 
 from . import __version__, cards, description, extraction
 from .errors import InputError
+from .textio import write_atomic, write_atomic_many
 
 EXIT_INPUT = 2
 EXIT_MISMATCH = 1
 EXIT_NO_SIMULATOR = 3
 EXIT_SKIPPED = 4
-
-
-def write_atomic_many(texts):
-    """Write several files so that none is replaced unless all could be written.
-
-    Every text goes to a temporary file beside its target first; only when
-    all are written are they renamed into place.
-    """
-    done = []
-    try:
-        for path, text in texts.items():
-            path = os.path.abspath(path)
-            fd, tmp = tempfile.mkstemp(prefix=".modelgen-", suffix=".tmp", dir=os.path.dirname(path))
-            done.append((tmp, path))
-            with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-                fh.write(text)
-    except BaseException:
-        for tmp, _ in done:
-            try:
-                os.unlink(tmp)
-            except OSError:
-                pass
-        raise
-    for tmp, path in done:
-        os.replace(tmp, path)
-
-
-def write_atomic(path, text):
-    """Write ``text`` to ``path`` through a temporary file and a rename.
-
-    The file at ``path`` is either left as it was or replaced whole; a
-    half-written output never exists under its name.
-    """
-    path = os.path.abspath(path)
-    folder = os.path.dirname(path)
-    fd, tmp = tempfile.mkstemp(prefix=".modelgen-", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
 
 
 def _fail(message):
@@ -418,7 +372,6 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
         _fail(f"{table_file}: no good rows; nothing written")
     skipped = [{"row": e.row, "key": e.key, "message": e.message} for e in errors]
     corner_cards = []
-    number_cache = {}  # the library and the summary share formatted columns
     try:
         if corner_spec:
             from .description import check_name
@@ -428,22 +381,37 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
                 corner_cards.append((section, corner_name, i,
                                      f"corner {section}: the row at the {pct:.4g} th percentile of IS "
                                      f"({result.device.name[i]}), a real row so its parameters stay consistent"))
-        text = cards.table_library(
-            result, dialect, title=f"diode model library from {os.path.basename(table_file)}",
-            extra=[f"{len(result)} of {n} rows" + (f"; {len(np.unique([e.row for e in errors]))} skipped"
-                                                    if errors else "")],
-            section="lot" if corner_spec else None, corner_cards=corner_cards, number_cache=number_cache)
+        if corner_spec and not cards.DIALECTS[dialect].sections:
+            raise ValueError(f"the {dialect} dialect has no .lib sections")
     except InputError as e:
         _fail(str(e))
     except ValueError as e:
         _fail(f"{e}; --corners needs a dialect with .lib sections (ngspice)")
-    prefix = summary_prefix or os.path.splitext(output)[0] + ".summary"
+    n_skipped = len(np.unique([e.row for e in errors])) if errors else 0
+
+    def library_text():
+        return cards.table_library(
+            result, dialect, title=f"diode model library from {os.path.basename(table_file)}",
+            extra=[f"{len(result)} of {n} rows" + (f"; {n_skipped} skipped" if errors else "")],
+            section="lot" if corner_spec else None, corner_cards=corner_cards)
+
     cols = lots.summary_columns(result)
-    csv_text, cells = lots.summary_texts(cols, number_cache)
-    outputs = {output: text, prefix + ".csv": csv_text,
-               prefix + ".json": lots.summary_json(cols, lots.statistics(cols), skipped, cells)}
+    summary = {}
+
+    def summary_csv():
+        summary["csv"], summary["cells"] = lots.summary_texts(cols)
+        return summary["csv"]
+
+    def summary_json():
+        if "cells" not in summary:
+            summary_csv()
+        return lots.summary_json(cols, lots.statistics(cols), skipped, summary["cells"])
+
+    prefix = summary_prefix or os.path.splitext(output)[0] + ".summary"
+    # the library in this process, the summary (CSV then JSON, in that order) in a forked one
+    outputs = {output: library_text, prefix + ".csv": summary_csv, prefix + ".json": summary_json}
     try:
-        write_atomic_many(outputs)
+        write_atomic_many(outputs, parallel=len(result) > 5000)
     except OSError as e:
         _fail(f"cannot write: {e.strerror} ({e.filename})")
     if not quiet:

@@ -8,6 +8,7 @@ one code path serves both.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, fields
+from operator import itemgetter
 
 import numpy as np
 
@@ -115,7 +116,8 @@ class Device:
                         kw[f.name] = v[sl]
                     else:
                         idx = np.flatnonzero(sl) if np.asarray(sl).dtype == bool else np.asarray(sl)
-                        kw[f.name] = tuple(v[j] for j in idx)
+                        picked = itemgetter(*idx.tolist())(v) if len(idx) else ()
+                        kw[f.name] = picked if len(idx) != 1 else (picked,)
                 else:
                     kw[f.name] = v[sl]
             return cls(**kw)

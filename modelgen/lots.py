@@ -31,7 +31,7 @@ from .textio import read_text
 from .units import apply_factor, parse_quantity, unit_factor
 
 #: Rows per physics chunk (bounds the breakdown solver's memory).
-CHUNK = 20000
+CHUNK = 50000
 _HEADER = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_.]*)\s*(?:\[\s*([^\]]*?)\s*\])?\s*$")
 
 
@@ -348,7 +348,7 @@ def _concat_devices(devices):
             if isinstance(vals[0], Side):
                 kw[f.name] = cat(vals, Side)
             elif isinstance(vals[0], tuple):
-                kw[f.name] = tuple(x for v in vals for x in v)
+                kw[f.name] = sum(vals, ()) if len(vals) < 64 else tuple(x for v in vals for x in v)
             else:
                 kw[f.name] = np.concatenate(vals)
         return cls(**kw)
