@@ -22,7 +22,7 @@ import numpy as np
 
 from . import __version__, cards, description, extraction
 from .errors import InputError
-from .textio import write_atomic, write_atomic_many
+from .textio import write_atomic
 
 EXIT_INPUT = 2
 EXIT_MISMATCH = 1
@@ -388,30 +388,13 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
     except ValueError as e:
         _fail(f"{e}; --corners needs a dialect with .lib sections (ngspice)")
     n_skipped = len(np.unique([e.row for e in errors])) if errors else 0
-
-    def library_text():
-        return cards.table_library(
-            result, dialect, title=f"diode model library from {os.path.basename(table_file)}",
-            extra=[f"{len(result)} of {n} rows" + (f"; {n_skipped} skipped" if errors else "")],
-            section="lot" if corner_spec else None, corner_cards=corner_cards)
-
-    cols = lots.summary_columns(result)
-    summary = {}
-
-    def summary_csv():
-        summary["csv"], summary["cells"] = lots.summary_texts(cols)
-        return summary["csv"]
-
-    def summary_json():
-        if "cells" not in summary:
-            summary_csv()
-        return lots.summary_json(cols, lots.statistics(cols), skipped, summary["cells"])
-
     prefix = summary_prefix or os.path.splitext(output)[0] + ".summary"
-    # the library in this process, the summary (CSV then JSON, in that order) in a forked one
-    outputs = {output: library_text, prefix + ".csv": summary_csv, prefix + ".json": summary_json}
     try:
-        write_atomic_many(outputs, parallel=len(result) > 5000)
+        lots.write_outputs(
+            result, {"library": output, "csv": prefix + ".csv", "json": prefix + ".json"}, dialect=dialect,
+            title=f"diode model library from {os.path.basename(table_file)}",
+            extra=[f"{len(result)} of {n} rows" + (f"; {n_skipped} skipped" if errors else "")],
+            section="lot" if corner_spec else None, corner_cards=corner_cards, skipped=skipped)
     except OSError as e:
         _fail(f"cannot write: {e.strerror} ({e.filename})")
     if not quiet:

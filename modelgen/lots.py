@@ -18,6 +18,7 @@ from __future__ import annotations
 import csv
 import json
 import math
+import os
 import re
 import tomllib
 from dataclasses import dataclass
@@ -384,7 +385,11 @@ def summary_columns(result):
 
 
 def _cells(v, cache=None):
-    """Text cells of one summary column: numbers as the cards write them ('' for NaN), true/false, text."""
+    """Text cells of one summary column: numbers as the cards write them ('' for NaN), true/false, text.
+
+    Each distinct value is formatted once (constant columns cost nothing); ``cache`` shares the
+    columns already formatted for the cards (see :func:`modelgen.cards.format_numbers`).
+    """
     from .cards import format_numbers
 
     if isinstance(v, np.ndarray) and v.dtype.kind == "b":
@@ -485,3 +490,91 @@ def corner_rows(result, spec):
         rank = int(round(p / 100 * (n - 1)))
         out.append((section, int(order[rank]), p))
     return out
+
+
+#: Share of the library's cards filled by the second process when the outputs are made in parallel
+#: (it also makes the summary's text, about as much work as a third of the cards).
+CHILD_SHARE = 0.1
+
+
+def write_outputs(result, paths, *, dialect, title, extra, section, corner_cards, skipped, parallel=True):
+    """Make and write a lot's library and summary files, all or none.
+
+    Parameters
+    ----------
+    result : Result
+        The good rows.
+    paths : dict
+        ``{"library": path, "csv": path, "json": path}``.
+    parallel : bool
+        On POSIX, with a large table, a forked second process makes the
+        summary and a share (:data:`CHILD_SHARE`) of the cards while this one
+        makes the rest: two cores, the same bytes.
+
+    Every file goes to a temporary file beside its target; only when all are
+    written are they renamed into place.
+    """
+    from . import cards
+    from .textio import temporary_beside
+
+    n = len(result)
+    cols = summary_columns(result)
+    temps = {k: temporary_beside(p) for k, p in paths.items()}
+    part = temporary_beside(paths["library"])
+
+    def write(path, text):
+        with open(path, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(text)
+
+    # the card columns are formatted once, before any fork: both processes use them, and the
+    # summary shares the columns it has in common with the cards
+    cache = {}
+    columns, _ = cards.card_columns(result, dialect)
+    texts = [cards.format_numbers(v, cache) for _, v in columns]
+
+    def summary():
+        csv_text, cells = summary_texts(cols, cache)
+        write(temps["csv"], csv_text)
+        write(temps["json"], summary_json(cols, statistics(cols), skipped, cells))
+
+    def cards_of(lo, hi):
+        return cards.table_cards(result, dialect, rows=np.arange(lo, hi), texts=texts)[0]
+
+    try:
+        split = int(n * (1 - CHILD_SHARE)) if parallel and hasattr(os, "fork") and n > 5000 else n
+        pid = os.fork() if split < n else None
+        if pid == 0:  # the child: its share of the cards and the summary; leave without the parent's cleanup
+            code = 0
+            try:
+                write(part, cards_of(split, n))
+                summary()
+            except BaseException:
+                code = 1
+            os._exit(code)
+        body = cards_of(0, split)
+        if pid:
+            _, status = os.waitpid(pid, 0)
+            if status == 0:
+                with open(part, encoding="utf-8") as fh:
+                    body += fh.read()
+            else:  # the child failed: make its share here, where an error can be seen
+                body += cards_of(split, n)
+                summary()
+        else:
+            summary()
+        write(temps["library"], cards.table_library(result, dialect, title=title, extra=extra, section=section,
+                                                    corner_cards=corner_cards, body=body))
+    except BaseException:
+        for t in list(temps.values()):
+            try:
+                os.unlink(t)
+            except OSError:
+                pass
+        raise
+    finally:
+        try:
+            os.unlink(part)
+        except OSError:
+            pass
+    for k, p in paths.items():
+        os.replace(temps[k], p)

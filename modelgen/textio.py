@@ -42,18 +42,8 @@ def _write(tmp, text):
         fh.write(text)
 
 
-def write_atomic_many(texts, *, parallel=False):
+def write_atomic_many(texts):
     """Write several files so that none is replaced unless all could be written.
-
-    Parameters
-    ----------
-    texts : dict
-        Target path -> text, or -> a function of no arguments returning the
-        text (made only when needed).
-    parallel : bool
-        Make the texts given as functions, but the first, in a forked child
-        process while this one makes the others (uses a second core; POSIX
-        only, otherwise sequential). The bytes written are the same.
 
     Every text goes to a temporary file beside its target first; only when
     all are written are they renamed into place.
@@ -61,25 +51,8 @@ def write_atomic_many(texts, *, parallel=False):
     items = [(os.path.abspath(p), t) for p, t in texts.items()]
     temps = [temporary_beside(p) for p, _ in items]
     try:
-        lazy = [k for k, (_, t) in enumerate(items) if callable(t)]
-        forked = lazy[1:] if parallel and hasattr(os, "fork") and len(lazy) > 1 else []
-        pid = os.fork() if forked else None
-        if pid == 0:  # the child: make its texts, write them, and leave without any cleanup of the parent's
-            code = 0
-            try:
-                for k in forked:
-                    _write(temps[k], items[k][1]())
-            except BaseException:
-                code = 1
-            os._exit(code)
-        for k, (_, t) in enumerate(items):
-            if k not in forked:
-                _write(temps[k], t() if callable(t) else t)
-        if pid:
-            _, status = os.waitpid(pid, 0)
-            if status != 0:  # the child failed: make its texts here, where an error can be seen
-                for k in forked:
-                    _write(temps[k], items[k][1]())
+        for tmp, (_, text) in zip(temps, items):
+            _write(tmp, text)
     except BaseException:
         for tmp in temps:
             try:

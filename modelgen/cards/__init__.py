@@ -440,28 +440,36 @@ def _fill_pattern(dialect, names):
     return re.sub(f"{_TOKEN}(\\w+){_TOKEN}", lambda m: "{" + m.group(1) + "}", text)
 
 
-def table_library(result: Result, dialect="spice3", *, title="diode model library", extra=(), section=None,
-                  corner_cards=(), number_cache=None):
-    """A library with one card per device of a (large) table, built column-wise.
+def table_cards(result: Result, dialect="spice3", rows=None, corner_cards=(), texts=None):
+    """The card texts of devices ``rows`` (default all), concatenated, and of any corner cards.
 
     Each card's header names its row (file and line) and carries its own
-    warnings; the notes, cautions and what the dialect leaves out are said
-    once in the file header. ``corner_cards`` adds ``(section, name, i,
-    comment)`` cards: device ``i`` again, named ``name``, in section
-    ``section`` (corner libraries). Cards are filled into a pattern made
-    from the card template (:func:`_fill_pattern`), grouped by which
-    parameters they carry. ``number_cache``: see :func:`format_numbers`.
+    warnings. ``corner_cards`` holds ``(section, name, i, comment)``: device
+    ``i`` again, named ``name``. Cards are filled into a pattern made from
+    the card template (:func:`_fill_pattern`), grouped by which parameters
+    they carry; numbers are formatted column-wise.
+
+    ``texts``: the formatted columns of all devices when already made
+    (``format_numbers`` of each of :func:`card_columns`' columns).
+
+    Returns
+    -------
+    (body, corners) :
+        The cards of ``rows`` as one text, and a list of the corner cards' texts.
     """
-    d = DIALECTS[dialect]
-    if (section or corner_cards) and not d.sections:
-        raise ValueError(f"the {dialect} dialect has no .lib sections")
     columns, p = card_columns(result, dialect)
     names = [k for k, _ in columns]
-    texts = [format_numbers(v, number_cache) for _, v in columns]
-    rows_text = list(zip(*texts))
     dev = result.device
     n = len(dev)
-    present = np.isfinite(np.column_stack([v for _, v in columns])) if columns else np.zeros((n, 0), bool)
+    rows = np.arange(n) if rows is None else np.asarray(rows)
+    wanted = np.concatenate([rows, np.array([c[2] for c in corner_cards], dtype=int)])
+    if texts is None:
+        texts = [format_numbers(v[wanted]) for _, v in columns]
+    else:
+        pick = wanted.tolist()
+        texts = [[col[i] for i in pick] for col in texts]
+    rows_text = list(zip(*texts))  # position k: device wanted[k]
+    present = np.isfinite(np.column_stack([v[wanted] for _, v in columns])) if columns else np.zeros((len(wanted), 0), bool)
     groups, group_of = np.unique(present, axis=0, return_inverse=True)
     group_of = group_of.ravel()
     src = _CONTROL.sub("", Path(dev.source[0]).name) if len(dev.source) and dev.source[0] else ""
@@ -473,24 +481,43 @@ def table_library(result: Result, dialect="spice3", *, title="diode model librar
         get = itemgetter(*cols) if len(cols) > 1 else (lambda row, j=cols[0]: (row[j],))
         fills.append((_fill_pattern(dialect, [names[j] for j in cols]).format, get))
 
-    def head(i, name, comment=None):
-        where = f"{src} line {lines[i]}" if lines[i] is not None else src
-        text = f"* {name}: {where}"  # name: a checked SPICE identifier; src: control characters removed
-        if comment:
-            text += "\n* " + _CONTROL.sub("", comment)
-        if warnings[i]:
-            text += "\n* " + warnings[i].replace("\n", "\n* ")  # our own one-line messages
-        return text
-
-    def card(i, name=None, comment=None):
-        fill, get = fills[group_of[i]]
+    def card(k, name=None, comment=None):
+        i = int(wanted[k])
+        fill, get = fills[group_of[k]]
         name = name or dev.name[i]
-        return fill(*get(rows_text[i]), head=head(i, name, comment), name=name)
+        where = f"{src} line {lines[i]}" if lines[i] is not None else src
+        head = f"* {name}: {where}"  # name: a checked SPICE identifier; src: control characters removed
+        if comment:
+            head += "\n* " + _CONTROL.sub("", comment)
+        if warnings[i]:
+            head += "\n* " + warnings[i].replace("\n", "\n* ")  # our own one-line messages
+        return fill(*get(rows_text[k]), head=head, name=name)
 
-    body = "".join([card(i) for i in range(n)])
-    sections = [{"name": section, "body": body}]
-    for sec, name, i, comment in corner_cards:
-        sections.append({"name": sec, "body": card(i, name, comment)})
+    body = "".join([card(k) for k in range(len(rows))])
+    corners = [card(len(rows) + m, name, comment) for m, (_, name, _, comment) in enumerate(corner_cards)]
+    return body, corners
+
+
+def table_library(result: Result, dialect="spice3", *, title="diode model library", extra=(), section=None,
+                  corner_cards=(), body=None):
+    """A library with one card per device of a (large) table.
+
+    The notes, cautions and what the dialect leaves out are said once in the
+    file header; each card names its row and carries its own warnings
+    (:func:`table_cards`). ``section`` puts the cards in a named ``.lib``
+    section; ``corner_cards`` (see :func:`table_cards`) adds corner cards in
+    sections of their own. ``body``: the cards' text when already made (by
+    :func:`table_cards`, possibly in parts).
+    """
+    d = DIALECTS[dialect]
+    if (section or corner_cards) and not d.sections:
+        raise ValueError(f"the {dialect} dialect has no .lib sections")
+    dev = result.device
+    made, corners = table_cards(result, dialect, rows=np.arange(0) if body is not None else None,
+                                corner_cards=corner_cards)
+    sections = [{"name": section, "body": made if body is None else body}]
+    for (sec, _, _, _), text in zip(corner_cards, corners):
+        sections.append({"name": sec, "body": text})
     left = [k for k in PARAMETERS if k not in d.carries and k != "IBV"]
     header = comment_lines(f"{title}: {len(dev)} cards, modelgen {__version__}, dialect {d.name} ({d.title})")
     for line in extra:
