@@ -58,11 +58,11 @@ def _convert_column(key, cells, unit, lines, file, problems):
     if (arr[~empty] != np.char.strip(arr[~empty])).any():  # rare: cells padded with spaces
         arr = np.char.strip(arr)
         empty = arr == ""
-    cells = arr.astype(object)
+    cells = arr
     if spec.kind in ("text", "choice"):
         if unit:
             raise InputError(f"column {key!r} takes no unit", file=file, key=key)
-        vals = cells
+        vals = arr.astype(object)
         if spec.kind == "choice":
             bad = ~empty & ~np.isin(vals, spec.choices)
             problems.add(bad, key, "{v!r} is not one of: " + ", ".join(spec.choices), {"v": vals})
@@ -87,7 +87,8 @@ def _convert_column(key, cells, unit, lines, file, problems):
             ohmic = np.char.lower(np.char.strip(text)) == "ohmic"
             bad &= ~ohmic
             x = np.where(ohmic, np.inf, x)
-        problems.add(bad, key, "not a finite number: {v!r}", {"v": cells})
+        if bad.any():  # str, not numpy's str_, so that the message shows 'abc'
+            problems.add(bad, key, "not a finite number: {v!r}", {"v": cells.astype(object)})
         with np.errstate(invalid="ignore"):
             out = np.where(np.isinf(x), x, apply_factor(x, scale, offset))
         out[bad] = np.nan
