@@ -30,6 +30,17 @@ EXIT_NO_SIMULATOR = 3
 EXIT_SKIPPED = 4
 
 
+def _emit(text, output):
+    """The text to ``output`` (atomically), or to stdout when there is none."""
+    if output:
+        try:
+            write_atomic(output, text)
+        except OSError as e:
+            _fail(f"{output}: cannot write: {e.strerror}")
+    else:
+        click.echo(text, nl=False)
+
+
 def _fail(message):
     click.echo(f"modelgen: error: {message}", err=True)
     sys.exit(EXIT_INPUT)
@@ -106,13 +117,7 @@ def card_command(device_files, output, fmt, dialect, section, quiet):
                 if not w.startswith("note:"):
                     kind = "" if w.startswith("caution:") else "warning: "
                     click.echo(f"modelgen: {prefix}{kind}{w}", err=True)
-    if output:
-        try:
-            write_atomic(output, text)
-        except OSError as e:
-            _fail(f"{output}: cannot write: {e.strerror}")
-    else:
-        click.echo(text, nl=False)
+    _emit(text, output)
 
 
 @main.command("check")
@@ -278,13 +283,7 @@ def corners_command(device_file, at, t_from, t_to, t_step, per_corner, dialect, 
     if not quiet:
         for line in fit_lines + warn:
             click.echo(f"modelgen: {line.strip()}", err=True)
-    if output:
-        try:
-            write_atomic(output, text)
-        except OSError as e:
-            _fail(f"{output}: cannot write: {e.strerror}")
-    else:
-        click.echo(text, nl=False)
+    _emit(text, output)
 
 
 @main.command("lots")

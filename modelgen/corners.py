@@ -20,12 +20,12 @@ fit; their error is reported with the others.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, fields, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from . import cards, extraction
-from .device import Device, Side
+from .device import Device
 from .spice import evaluator
 
 #: Corners used when none are given [degC].
@@ -54,22 +54,7 @@ def replicate(device: Device, temperatures):
         Evaluation temperatures [K].
     """
     t = np.asarray(temperatures, float)
-    n = len(t)
-
-    def rep(obj, cls):
-        kw = {}
-        for f in fields(cls):
-            v = getattr(obj, f.name)
-            if isinstance(v, Side):
-                kw[f.name] = rep(v, Side)
-            elif isinstance(v, tuple):
-                kw[f.name] = v * n if len(v) else v
-            else:
-                kw[f.name] = np.repeat(v, n)
-        return cls(**kw)
-
-    out = rep(device, Device)
-    return replace(out, temperature=t)
+    return replace(device.take(np.zeros(len(t), int)), temperature=t)
 
 
 def evaluate(device: Device, temperatures):

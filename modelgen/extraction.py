@@ -126,9 +126,6 @@ def derive(device: Device, problems: Problems | None = None) -> Result:
     if problems is None:
         problems = Problems(len(device), sources=device.source, rows=device.line)
 
-    def _fail(_device, mask, key, message, values=None):
-        problems.add(mask, key, message, values)
-
     findings = []
     t = device.temperature
     t_ref = device.reference_temperature  # where the user's values (ni, bandgap, lifetime, resistivity) hold
@@ -154,7 +151,7 @@ def derive(device: Device, problems: Problems | None = None) -> Result:
         with np.errstate(invalid="ignore", divide="ignore"):
             n_rho = np.where(_given(mu_override), 1.0 / (mat.Q * side.resistivity * mu_override), n_rho)
         doping = np.where(from_rho, n_rho, side.doping)
-        _fail(device, from_rho & ~np.isfinite(doping), f"{name}.resistivity",
+        problems.add(from_rho & ~np.isfinite(doping), f"{name}.resistivity",
               "outside the range of the mobility model (doping 1e12-1e22 cm^-3)")
         mu_maj = np.where(_given(mu_override), mu_override, mat.majority_mobility(doping, majority, t))
         mu_min = np.where(_given(side.minority_mobility), side.minority_mobility,
@@ -196,16 +193,16 @@ def derive(device: Device, problems: Problems | None = None) -> Result:
         vgr = junction.gradient_voltage(np.where(linear, grading, 1.0), ni, eps, t)
     vbi = np.where(linear, vgr, vbi_abrupt)
     vj = junction.junction_potential(vbi, linear, t)
-    _fail(device, ~(vj > 0), "profile", "the junction potential comes out non-positive ({vj:.3g} V): "
+    problems.add(~(vj > 0), "profile", "the junction potential comes out non-positive ({vj:.3g} V): "
           "check the doping and grading", {"vj": vj})
-    _fail(device, device.reference_bias >= vj, "reference_bias",
+    problems.add(device.reference_bias >= vj, "reference_bias",
           "{v:.4g} V is at or beyond the junction potential VJ = {vj:.4g} V", {"v": device.reference_bias, "vj": vj})
     w_ref, xp_ref, xn_ref = junction.depletion_width(vj, device.reference_bias, na, nd, grading, linear, eps)
     w0, xp0, xn0 = junction.depletion_width(vj, 0.0, na, nd, grading, linear, eps)
     for name, side, x_ref in (("p", device.p, xp_ref), ("n", device.n, xn_ref)):
         thick = np.where(_given(side.thickness), side.thickness, side.neutral_width + x_ref)
         width = np.where(_given(side.thickness), side.thickness - x_ref, side.neutral_width)
-        _fail(device, ~(width > 0), f"{name}.thickness",
+        problems.add(~(width > 0), f"{name}.thickness",
               "this side is depleted through to its contact at the reference bias "
               "(depletion extent {x:.4g} um, thickness {t:.4g} um): no neutral region is left",
               {"x": x_ref * 1e6, "t": thick * 1e6})
