@@ -53,6 +53,17 @@ def _is_numeric_kind(kind):
 def _convert_column(key, cells, unit, lines, file, problems):
     """SI values of one column; bad cells recorded in ``problems``."""
     spec = KEYS[key]
+    if spec.kind == "number" or (unit is not None and spec.kind not in ("text", "choice")):
+        try:  # the common case, every cell a plain number: one pass of float()
+            x = np.fromiter(map(float, cells), float, len(cells))
+        except ValueError:
+            pass  # empty or bad cells: the careful path below
+        else:
+            if np.isfinite(x).all():
+                if unit is not None and spec.kind == "number":
+                    raise InputError(f"column {key!r} is a plain number and takes no unit", file=file, key=key)
+                scale, offset = (1.0, 0.0) if spec.kind == "number" else _factor(key, unit, file)
+                return apply_factor(x, scale, offset)
     arr = np.array(cells, dtype=str)
     empty = arr == ""
     if (arr[~empty] != np.char.strip(arr[~empty])).any():  # rare: cells padded with spaces
