@@ -53,14 +53,18 @@ def main():
 
     A device description (a TOML file: doping, thickness, lifetime and area
     of each side) goes in; a .model card comes out, with IS, N, RS, CJO, VJ,
-    M, FC, TT, BV, IBV, EG and XTI derived from published silicon models and
-    the exact finite-width solution of minority-carrier diffusion.
+    M, FC, TT, BV, IBV, EG and XTI (and ISR, NR, IKF, sidewall terms where
+    the dialect has them) derived from published silicon models and the
+    exact finite-width solution of minority-carrier diffusion. 'corners'
+    fits the temperature parameters across corners, 'lots' turns a table of
+    devices into a library, 'check' proves cards in ngspice and gnucap.
 
     A card is a physics estimate: check it against measured devices before
     design sign-off, and derate breakdown figures.
 
     Exit status: 0 on success, 1 when a card fails its simulator check, 2 on
-    bad input or usage, 3 when no simulator is installed to check with.
+    bad input or usage, 3 when no simulator is installed to check with, 4
+    when a lot was written with bad rows skipped (--keep-going).
     """
 
 
