@@ -402,16 +402,22 @@ def as_json(result: Result, i=0):
     return json.dumps(row_document(result, i), indent=2, allow_nan=False) + "\n"
 
 
-def _row_warnings(result):
+def _row_warnings(result, rows=None):
     """Per device, the warnings that matter on its own card (notes and cautions go once in the header).
 
-    Returns a list with, for each device, its warning lines joined by newlines ('' when none).
+    Returns a list with, for each device, its warning lines joined by newlines ('' when none);
+    with ``rows``, only those devices' entries are filled.
     """
     out = [""] * len(result)
+    only = None
+    if rows is not None:
+        only = np.zeros(len(result), bool)
+        only[np.asarray(rows, int)] = True
     for f in result.findings:
-        if f.text.startswith(("note:", "caution:")) or not f.mask.any():
+        mask = f.mask if only is None else f.mask & only
+        if f.text.startswith(("note:", "caution:")) or not mask.any():
             continue
-        idx = np.flatnonzero(f.mask).tolist()
+        idx = np.flatnonzero(mask).tolist()
         keys = list(f.values)
         cols = [f.values[k][idx].tolist() if isinstance(f.values[k], np.ndarray) else [f.values[k]] * len(idx)
                 for k in keys]
@@ -470,11 +476,13 @@ def table_cards(result: Result, dialect="spice3", rows=None, corner_cards=(), te
         texts = [[col[i] for i in pick] for col in texts]
     rows_text = list(zip(*texts))  # position k: device wanted[k]
     present = np.isfinite(np.column_stack([v[wanted] for _, v in columns])) if columns else np.zeros((len(wanted), 0), bool)
-    groups, group_of = np.unique(present, axis=0, return_inverse=True)
+    codes = present.astype(np.int64) @ (np.int64(1) << np.arange(present.shape[1], dtype=np.int64))
+    _, first, group_of = np.unique(codes, return_index=True, return_inverse=True)
+    groups = present[first]
     group_of = group_of.ravel()
     src = _CONTROL.sub("", Path(dev.source[0]).name) if len(dev.source) and dev.source[0] else ""
     lines = list(dev.line) if len(dev.line) else [None] * n
-    warnings = _row_warnings(result)
+    warnings = _row_warnings(result, wanted)
     fills = []
     for g in groups:
         cols = [j for j, ok in enumerate(g) if ok]

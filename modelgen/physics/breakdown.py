@@ -159,16 +159,35 @@ TABLE_MAX_TEMPERATURES = 8
 _TABLES: dict = {}
 
 
-def _critical_field_table(temp, coefficients, breakpoint):
-    """ln E0 at breakdown of thick abrupt junctions over :data:`TABLE_LOG_SLOPES`^2 (cached)."""
+def _critical_field_table(temp, coefficients, breakpoint, ix=None, iy=None):
+    """ln E0 at breakdown of thick abrupt junctions on the :data:`TABLE_LOG_SLOPES` grid (cached).
+
+    Only the grid points that interpolation at cells ``(ix, iy)`` needs (the
+    4 x 4 neighbourhoods) are solved, once each per temperature; a point's
+    value never depends on which others were asked for.
+    """
     key = (float(temp), coefficients, breakpoint)
+    m = len(TABLE_LOG_SLOPES)
     if key not in _TABLES:
+        _TABLES[key] = (np.full((m, m), np.nan), np.zeros((m, m), bool))
+    table, done = _TABLES[key]
+    need = np.zeros((m, m), bool)
+    if ix is None:
+        need[:] = True
+    else:
+        cells = np.unique(np.stack([ix, iy], axis=1), axis=0)
+        for a in range(-1, 3):
+            for b in range(-1, 3):
+                need[np.clip(cells[:, 0] + a, 0, m - 1), np.clip(cells[:, 1] + b, 0, m - 1)] = True
+    todo = np.argwhere(need & ~done)
+    if len(todo):
         g = 10.0 ** TABLE_LOG_SLOPES
-        sn, sp = (x.ravel() for x in np.meshgrid(g, g, indexing="ij"))
-        inf = np.full(sn.shape, np.inf)
-        x, found = _solve_abrupt(sn, sp, inf, inf, np.full(sn.shape, float(temp)), coefficients, breakpoint)
-        _TABLES[key] = np.where(found, x, np.nan).reshape(len(g), len(g))
-    return _TABLES[key]
+        sn, sp = g[todo[:, 0]], g[todo[:, 1]]
+        inf = np.full(len(todo), np.inf)
+        x, found = _solve_abrupt(sn, sp, inf, inf, np.full(len(todo), float(temp)), coefficients, breakpoint)
+        table[todo[:, 0], todo[:, 1]] = np.where(found, x, np.nan)
+        done[todo[:, 0], todo[:, 1]] = True
+    return table
 
 
 def _cubic_weights(t):
@@ -178,14 +197,19 @@ def _cubic_weights(t):
                       -1.5 * t3 + 2.0 * t2 + 0.5 * t, 0.5 * t3 - 0.5 * t2], axis=-1))
 
 
-def _interpolate_table(table, log_sn, log_sp):
-    """Bicubic (Catmull-Rom) interpolation of the table; NaN outside or next to a gap."""
+def _table_cells(log_sn, log_sp):
+    """Grid cells of the points, their fractions, and whether the 4 x 4 stencil fits the grid."""
     g = TABLE_LOG_SLOPES
     h = g[1] - g[0]
     fx, fy = (log_sn - g[0]) / h, (log_sp - g[0]) / h
     ix, iy = np.floor(fx).astype(int), np.floor(fy).astype(int)
     inside = (ix >= 1) & (ix <= len(g) - 3) & (iy >= 1) & (iy <= len(g) - 3)
-    ix, iy = np.where(inside, ix, 1), np.where(inside, iy, 1)
+    return np.where(inside, ix, 1), np.where(inside, iy, 1), fx, fy, inside
+
+
+def _interpolate_table(table, log_sn, log_sp):
+    """Bicubic (Catmull-Rom) interpolation of the table; NaN outside or next to a gap."""
+    ix, iy, fx, fy, inside = _table_cells(log_sn, log_sp)
     wx, wy = _cubic_weights(fx - ix), _cubic_weights(fy - iy)
     out = np.zeros(len(log_sn))
     for a in range(4):
@@ -393,8 +417,10 @@ def breakdown_voltage(vbi, na, nd, tp, tn, grading, linear, permittivity, temper
             # depletion region would reach a contact is solved directly
             for tk in temps:
                 rows = np.flatnonzero(temp[ab] == tk)
-                xt = _interpolate_table(_critical_field_table(tk, coefficients, breakpoint),
-                                        np.log10(sn[rows]), np.log10(sp[rows]))
+                lsn, lsp = np.log10(sn[rows]), np.log10(sp[rows])
+                ix, iy, _, _, inside = _table_cells(lsn, lsp)
+                table = _critical_field_table(tk, coefficients, breakpoint, ix[inside], iy[inside])
+                xt = _interpolate_table(table, lsn, lsp)
                 e0t = np.exp(xt)
                 thick = np.isfinite(xt) & (e0t / sn[rows] < tn[ab][rows]) & (e0t / sp[rows] < tp[ab][rows])
                 x[ab[rows[thick]]] = xt[thick]
