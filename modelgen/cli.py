@@ -30,6 +30,23 @@ EXIT_NO_SIMULATOR = 3
 EXIT_SKIPPED = 4
 
 
+class _Clock:
+    """With MODELGEN_TIMING=1 in the environment, stage times on stderr (for benchmarks)."""
+
+    def __init__(self):
+        import time
+
+        self.now = time.perf_counter
+        self.last = self.now()
+        self.on = os.environ.get("MODELGEN_TIMING") == "1"
+
+    def __call__(self, stage):
+        t = self.now()
+        if self.on:
+            click.echo(f"modelgen: timing: {stage} {t - self.last:.3f} s", err=True)
+        self.last = t
+
+
 def _emit(text, output):
     """The text to ``output`` (atomically), or to stdout when there is none."""
     if output:
@@ -336,6 +353,7 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
     """
     from . import lots
 
+    clock = _Clock()
     set_values = {}
     for item in sets:
         key, eq, value = item.partition("=")
@@ -347,6 +365,7 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
     except InputError as e:
         _fail(str(e.located(file=table_file)))
     n = len(table.lines)
+    clock("read")
     show = not quiet and sys.stderr.isatty() and n > lots.CHUNK
     try:
         if show:
@@ -363,6 +382,7 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
     except InputError as e:
         _fail(str(e.located(file=table_file)))
     errors = table.problems.errors()
+    clock("checks and physics")
     if errors and not keep_going:
         for e in errors:
             click.echo(f"modelgen: error: {e}", err=True)
@@ -400,6 +420,7 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
             section="lot" if corner_spec else None, corner_cards=corner_cards, skipped=skipped)
     except OSError as e:
         _fail(f"cannot write: {e.strerror} ({e.filename})")
+    clock("library and summary")
     if not quiet:
         click.echo(f"modelgen: {len(result)} cards written to {output}; summary in {prefix}.csv and "
                    f"{prefix}.json" + (f"; {len(skipped)} problems, rows skipped" if skipped else ""), err=True)

@@ -397,17 +397,23 @@ def summary_columns(result):
 
 
 def _cells(v, cache=None):
-    """Text cells of one summary column: numbers as the cards write them ('' for NaN), true/false, text.
+    """Text cells of one summary column: numbers ('' for NaN), true/false, text.
 
-    Each distinct value is formatted once (constant columns cost nothing); ``cache`` shares the
-    columns already formatted for the cards (see :func:`modelgen.cards.format_numbers`).
+    Card parameters already formatted for the cards (``cache``, see
+    :func:`modelgen.cards.format_numbers`) keep the cards' exponent text; other
+    numbers are Python's shortest round-trip repr. Each distinct value is
+    formatted once (constant columns cost nothing).
     """
     from .cards import format_numbers
 
     if isinstance(v, np.ndarray) and v.dtype.kind == "b":
         return np.where(v, "true", "false").tolist()
     if isinstance(v, np.ndarray) and v.dtype.kind == "f":
-        return [t if t is not None else "" for t in format_numbers(v, cache)]
+        if cache is not None and id(v) in cache:  # a card column: the cards' exponent text
+            return [t if t is not None else "" for t in format_numbers(v, cache)]
+        uniq, inverse = np.unique(v, return_inverse=True)  # otherwise the shortest repr, cheaper
+        texts = [r if r not in ("nan", "inf", "-inf") else "" for r in map(repr, uniq.tolist())]
+        return [texts[k] for k in inverse.ravel().tolist()]
     return list(map(str, np.asarray(v).tolist()))
 
 
