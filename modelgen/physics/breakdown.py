@@ -32,6 +32,8 @@ from ..materials.silicon import Q
 
 #: Nodes per side of the junction in the ionization-integral quadrature.
 NODES_PER_SIDE = 256
+#: Rows of graded junctions solved at a time (each needs 2 NODES_PER_SIDE grid points).
+GRADED_CHUNK = 2000
 #: Bracket for the peak field at breakdown [V/m] (5e4-2e6 V/cm).
 FIELD_BRACKET = (5e6, 2e8)
 
@@ -188,6 +190,50 @@ def _critical_field_table(temp, coefficients, breakpoint, ix=None, iy=None):
         table[todo[:, 0], todo[:, 1]] = np.where(found, x, np.nan)
         done[todo[:, 0], todo[:, 1]] = True
     return table
+
+
+#: Table of the critical field of linearly graded junctions: log10 of a / eps [m^-4 / (F/m)],
+#: 16 points a decade, covering gradients from about 1e13 to 1e24 cm^-4 in silicon.
+GRADED_LOG_A = np.linspace(31.0, 42.0, 177)
+_GRADED: dict = {}
+
+
+def _graded_table(temp, coefficients, iterations):
+    """ln E0 at breakdown of linearly graded junctions over :data:`GRADED_LOG_A` (cached)."""
+    key = (float(temp), coefficients)
+    if key not in _GRADED:
+        g = 10.0 ** GRADED_LOG_A  # a / eps; the field and potential depend on a and eps only through it
+        m = len(g)
+        one = np.ones(m)
+        lo = np.full(m, np.log(FIELD_BRACKET[0]))
+        hi = np.full(m, np.log(FIELD_BRACKET[1]))
+
+        def integral(e0):
+            y, f, _, _, _ = field_profile(e0, one, one, np.inf * one, np.inf * one, g, np.ones(m, bool), one)
+            return ionization_integral(y, f, np.full(m, float(temp)), coefficients)
+
+        ok = (integral(np.exp(lo)) < 1.0) & (integral(np.exp(hi)) > 1.0)
+        for _ in range(iterations):
+            mid = 0.5 * (lo + hi)
+            under = integral(np.exp(mid)) < 1.0
+            lo = np.where(under, mid, lo)
+            hi = np.where(under, hi, mid)
+        _GRADED[key] = np.where(ok, 0.5 * (lo + hi), np.nan)
+    return _GRADED[key]
+
+
+def _graded_critical_field(log_a, eps, temp, coefficients, iterations):
+    """ln E0 at breakdown for graded junctions by cubic (Catmull-Rom) interpolation of the table."""
+    table = _graded_table(temp, coefficients, iterations)
+    g = GRADED_LOG_A
+    f = (log_a - np.log10(eps) - g[0]) / (g[1] - g[0])
+    i = np.floor(f).astype(int)
+    inside = (i >= 1) & (i <= len(g) - 3)
+    i = np.where(inside, i, 1)
+    w = _cubic_weights(f - i)
+    x = sum(w[:, k] * table[i - 1 + k] for k in range(4))
+    found = inside & np.isfinite(x)
+    return np.where(found, x, np.nan), found
 
 
 def _cubic_weights(t):
@@ -430,21 +476,14 @@ def breakdown_voltage(vbi, na, nd, tp, tn, grading, linear, permittivity, temper
         if len(d):
             x[ab[d]], found[ab[d]] = _solve_abrupt(sn[d], sp[d], tn[ab][d], tp[ab][d], temp[ab][d], coefficients,
                                                    breakpoint)
-    gr = np.flatnonzero(lin)
-    if len(gr):
-        def integral(e0):
-            y, f, _, _, _ = field_profile(e0, na[gr], nd[gr], tp[gr], tn[gr], grading[gr], lin[gr], eps[gr])
-            return ionization_integral(y, f, temp[gr], coefficients)
-
-        lo = np.full(len(gr), np.log(FIELD_BRACKET[0]))
-        hi = np.full(len(gr), np.log(FIELD_BRACKET[1]))
-        ok = (integral(np.exp(lo)) < 1.0) & (integral(np.exp(hi)) > 1.0)
-        for _ in range(iterations):
-            mid = 0.5 * (lo + hi)
-            under = integral(np.exp(mid)) < 1.0
-            lo = np.where(under, mid, lo)
-            hi = np.where(under, hi, mid)
-        x[gr], found[gr] = 0.5 * (lo + hi), ok
+    linear_rows = np.flatnonzero(lin)
+    if len(linear_rows):
+        # the graded field depends on the gradient alone (reach-through is not modelled for it):
+        # the critical field comes from a table over log10 a, solved on first use at each temperature
+        for tk in np.unique(temp[linear_rows]):
+            rows = linear_rows[temp[linear_rows] == tk]
+            x[rows], found[rows] = _graded_critical_field(np.log10(grading[rows]), eps[rows], tk, coefficients,
+                                                          iterations)
     e0 = np.exp(np.where(found, x, np.log(FIELD_BRACKET[1])))
     _, _, potential, reach_p, reach_n = field_profile(e0, na, nd, tp, tn, grading, lin, eps, nodes=2)
     bv = np.where(found, potential - np.asarray(vbi, float), np.nan)
