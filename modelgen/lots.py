@@ -510,9 +510,9 @@ def corner_rows(result, spec):
     return out
 
 
-#: Share of the library's cards filled by the second process when the outputs are made in parallel
-#: (it also makes the summary's text, about as much work as a third of the cards).
-CHILD_SHARE = 0.1
+#: Share of the library's cards filled by the second process when the outputs are made in parallel;
+#: it makes the summary, about as much work as filling all the cards, so it takes none of them.
+CHILD_SHARE = 0.0
 
 
 def write_outputs(result, paths, *, dialect, title, extra, section, corner_cards, skipped, parallel=True):
@@ -559,12 +559,14 @@ def write_outputs(result, paths, *, dialect, title, extra, section, corner_cards
         return cards.table_cards(result, dialect, rows=np.arange(lo, hi), texts=texts)[0]
 
     try:
-        split = int(n * (1 - CHILD_SHARE)) if parallel and hasattr(os, "fork") and n > 5000 else n
-        pid = os.fork() if split < n else None
+        forking = parallel and hasattr(os, "fork") and n > 5000
+        split = int(n * (1 - CHILD_SHARE)) if forking else n
+        pid = os.fork() if forking else None
         if pid == 0:  # the child: its share of the cards and the summary; leave without the parent's cleanup
             code = 0
             try:
-                write(part, cards_of(split, n))
+                if split < n:
+                    write(part, cards_of(split, n))
                 summary()
             except BaseException:
                 code = 1
@@ -573,8 +575,9 @@ def write_outputs(result, paths, *, dialect, title, extra, section, corner_cards
         if pid:
             _, status = os.waitpid(pid, 0)
             if status == 0:
-                with open(part, encoding="utf-8") as fh:
-                    body += fh.read()
+                if split < n:
+                    with open(part, encoding="utf-8") as fh:
+                        body += fh.read()
             else:  # the child failed: make its share here, where an error can be seen
                 body += cards_of(split, n)
                 summary()

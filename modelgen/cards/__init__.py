@@ -434,16 +434,17 @@ def _fill_pattern(dialect, names):
     """A str.format pattern for one card with these parameters, made by rendering the card template.
 
     The template is rendered once with placeholder tokens for the header
-    block, the name and each value; the result, braces escaped and tokens
-    turned into fields, is filled for every device. The template stays the
-    one place that holds the card syntax; filling is fast.
+    block ({0}), the name ({1}) and each value ({2}, {3}, ...); the result,
+    braces escaped and tokens turned into positional fields, is filled for
+    every device. The template stays the one place that holds the card
+    syntax; filling is fast.
     """
     token = lambda k: f"{_TOKEN}{k}{_TOKEN}"  # noqa: E731
-    proto = {"header": [token("head")], "notes": [], "name": token("name"),
-             "params": [(k, token(j)) for j, k in enumerate(names)]}
+    proto = {"header": [token(0)], "notes": [], "name": token(1),
+             "params": [(k, token(j + 2)) for j, k in enumerate(names)]}
     text = _environment().get_template(DIALECTS[dialect].template).render(card=proto)
     text = text.replace("{", "{{").replace("}", "}}")
-    return re.sub(f"{_TOKEN}(\\w+){_TOKEN}", lambda m: "{" + m.group(1) + "}", text)
+    return re.sub(f"{_TOKEN}(\\d+){_TOKEN}", lambda m: "{" + m.group(1) + "}", text)
 
 
 def table_cards(result: Result, dialect="spice3", rows=None, corner_cards=(), texts=None):
@@ -453,7 +454,8 @@ def table_cards(result: Result, dialect="spice3", rows=None, corner_cards=(), te
     warnings. ``corner_cards`` holds ``(section, name, i, comment)``: device
     ``i`` again, named ``name``. Cards are filled into a pattern made from
     the card template (:func:`_fill_pattern`), grouped by which parameters
-    they carry; numbers are formatted column-wise.
+    they carry; numbers are formatted column-wise, and each group is filled
+    by one ``map`` over its columns.
 
     ``texts``: the formatted columns of all devices when already made
     (``format_numbers`` of each of :func:`card_columns`' columns).
@@ -469,41 +471,46 @@ def table_cards(result: Result, dialect="spice3", rows=None, corner_cards=(), te
     n = len(dev)
     rows = np.arange(n) if rows is None else np.asarray(rows)
     wanted = np.concatenate([rows, np.array([c[2] for c in corner_cards], dtype=int)])
+    pick = wanted.tolist()
     if texts is None:
         texts = [format_numbers(v[wanted]) for _, v in columns]
+    elif not corner_cards and len(rows) == n and np.array_equal(rows, np.arange(n)):
+        pass  # all devices in order: the columns as they are
     else:
-        pick = wanted.tolist()
-        texts = [[col[i] for i in pick] for col in texts]
-    rows_text = list(zip(*texts))  # position k: device wanted[k]
-    present = np.isfinite(np.column_stack([v[wanted] for _, v in columns])) if columns else np.zeros((len(wanted), 0), bool)
-    codes = present.astype(np.int64) @ (np.int64(1) << np.arange(present.shape[1], dtype=np.int64))
-    _, first, group_of = np.unique(codes, return_index=True, return_inverse=True)
-    groups = present[first]
-    group_of = group_of.ravel()
+        texts = [[col[i] for i in pick] for col in texts]  # position k: device wanted[k]
     src = _CONTROL.sub("", Path(dev.source[0]).name) if len(dev.source) and dev.source[0] else ""
     lines = list(dev.line) if len(dev.line) else [None] * n
     warnings = _row_warnings(result, wanted)
-    fills = []
-    for g in groups:
-        cols = [j for j, ok in enumerate(g) if ok]
-        get = itemgetter(*cols) if len(cols) > 1 else (lambda row, j=cols[0]: (row[j],))
-        fills.append((_fill_pattern(dialect, [names[j] for j in cols]).format, get))
-
-    def card(k, name=None, comment=None):
-        i = int(wanted[k])
-        fill, get = fills[group_of[k]]
-        name = name or dev.name[i]
+    model = [dev.name[i] for i in pick]
+    comments = [None] * len(rows)
+    for m, (_, name, _, comment) in enumerate(corner_cards):
+        model[len(rows) + m] = name
+        comments.append(_CONTROL.sub("", comment) if comment else None)
+    heads = []  # names: checked SPICE identifiers; src and comments: control characters removed
+    for k, i in enumerate(pick):
         where = f"{src} line {lines[i]}" if lines[i] is not None else src
-        head = f"* {name}: {where}"  # name: a checked SPICE identifier; src: control characters removed
-        if comment:
-            head += "\n* " + _CONTROL.sub("", comment)
+        h = f"* {model[k]}: {where}"
+        if comments[k]:
+            h += "\n* " + comments[k]
         if warnings[i]:
-            head += "\n* " + warnings[i].replace("\n", "\n* ")  # our own one-line messages
-        return fill(*get(rows_text[k]), head=head, name=name)
-
-    body = "".join([card(k) for k in range(len(rows))])
-    corners = [card(len(rows) + m, name, comment) for m, (_, name, _, comment) in enumerate(corner_cards)]
-    return body, corners
+            h += "\n* " + warnings[i].replace("\n", "\n* ")  # our own one-line messages
+        heads.append(h)
+    present = np.isfinite(np.column_stack([v[wanted] for _, v in columns])) if columns else np.zeros((len(wanted), 0), bool)
+    codes = present.astype(np.int64) @ (np.int64(1) << np.arange(present.shape[1], dtype=np.int64))
+    _, first, group_of = np.unique(codes, return_index=True, return_inverse=True)
+    group_of = group_of.ravel()
+    out = [None] * len(wanted)
+    for g, f in enumerate(first.tolist()):
+        cols = [j for j, ok in enumerate(present[f]) if ok]
+        fill = _fill_pattern(dialect, [names[j] for j in cols]).format
+        if len(first) == 1:
+            out = list(map(fill, heads, model, *[texts[j] for j in cols]))
+            break
+        idx = np.flatnonzero(group_of == g).tolist()
+        pickg = itemgetter(*idx) if len(idx) > 1 else (lambda seq, i=idx[0]: (seq[i],))
+        for k, text in zip(idx, map(fill, pickg(heads), pickg(model), *[pickg(texts[j]) for j in cols])):
+            out[k] = text
+    return "".join(out[:len(rows)]), out[len(rows):]
 
 
 def table_library(result: Result, dialect="spice3", *, title="diode model library", extra=(), section=None,
