@@ -410,7 +410,8 @@ def _cells(v, cache=None):
         return np.where(v, "true", "false").tolist()
     if isinstance(v, np.ndarray) and v.dtype.kind == "f":
         if cache is not None and id(v) in cache:  # a card column: the cards' exponent text
-            return [t if t is not None else "" for t in format_numbers(v, cache)]
+            texts = format_numbers(v, cache)
+            return [t if t is not None else "" for t in texts] if None in texts else texts
         uniq, inverse = np.unique(v, return_inverse=True)  # otherwise the shortest repr, cheaper
         texts = [r if r not in ("nan", "inf", "-inf") else "" for r in map(repr, uniq.tolist())]
         return [texts[k] for k in inverse.ravel().tolist()]
@@ -459,7 +460,7 @@ def summary_json(cols, stats, skipped, cells=None):
         kind = np.asarray(v).dtype.kind
         if kind in "fi":
             c = cells[k]
-            items = "[" + ",".join([x or "null" for x in c]) + "]"
+            items = "[" + ",".join([x or "null" for x in c] if "" in c else c) + "]"
         elif kind == "b":
             items = "[" + ",".join(cells[k]) + "]"
         else:
