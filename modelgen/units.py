@@ -6,9 +6,10 @@ pint is used only here, where text becomes numbers. Parse once per value
 
 from __future__ import annotations
 
+import json
 import math
+import os
 import re
-
 from functools import lru_cache
 
 from .errors import InputError
@@ -62,13 +63,66 @@ def _unit(text):
     return _unit_cache[text]
 
 
+_FACTORS: dict | None = None
+
+
+def _factor_file():
+    import importlib.metadata
+
+    import platformdirs
+
+    from . import __version__
+
+    folder = platformdirs.user_cache_dir("modelgen")
+    return os.path.join(folder, f"unit-factors-{__version__}-pint-{importlib.metadata.version('pint')}.json")
+
+
+def _known_factors():
+    """Factors found in earlier runs (a cache beside pint's own; importing pint costs ~0.2 s)."""
+    global _FACTORS
+    if _FACTORS is None:
+        _FACTORS = {}
+        try:
+            with open(_factor_file(), encoding="utf-8") as fh:
+                _FACTORS = {k: tuple(v) for k, v in json.load(fh).items()}
+        except Exception:  # no cache yet, or an unreadable one: pint answers
+            _FACTORS = {}
+    return _FACTORS
+
+
+def _remember(key, value):
+    known = _known_factors()
+    known[key] = value
+    try:  # best effort, atomic: a cache that cannot be written costs only speed
+        path = _factor_file()
+        os.makedirs(os.path.dirname(path), exist_ok=True)
+        tmp = f"{path}.{os.getpid()}.tmp"
+        with open(tmp, "w", encoding="utf-8") as fh:
+            json.dump(known, fh, sort_keys=True)
+        os.replace(tmp, path)
+    except Exception:
+        pass
+
+
 def unit_factor(unit_text, kind):
     """Multiplier and offset taking numbers in ``unit_text`` to SI numbers of ``kind``.
 
     Returns ``(scale, offset)`` with si = value * scale + offset (the offset is
     non-zero only for temperatures in degC or degF). Raises ValueError with a
     readable reason if the unit does not parse or has the wrong dimension.
+    Factors pint has given once are kept in the user's cache folder (per
+    modelgen and pint version), so a later run need not import pint.
     """
+    key = f"{kind}|{unit_text}"
+    known = _known_factors()
+    if key in known:
+        return known[key]
+    value = _unit_factor(unit_text, kind)
+    _remember(key, value)
+    return value
+
+
+def _unit_factor(unit_text, kind):
     si, example = KINDS[kind]
     try:
         unit = _unit(unit_text)
