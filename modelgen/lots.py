@@ -434,7 +434,7 @@ def _cells(v, cache=None):
     numbers are Python's shortest round-trip repr. Each distinct value is
     formatted once (constant columns cost nothing).
     """
-    from .cards import format_numbers
+    from .cards import _take, format_numbers
 
     if isinstance(v, np.ndarray) and v.dtype.kind == "b":
         return np.where(v, "true", "false").tolist()
@@ -443,8 +443,11 @@ def _cells(v, cache=None):
             texts = format_numbers(v, cache)
             return [t if t is not None else "" for t in texts] if None in texts else texts
         uniq, inverse = np.unique(v, return_inverse=True)  # otherwise the shortest repr, cheaper
-        texts = [r if r not in ("nan", "inf", "-inf") else "" for r in map(repr, uniq.tolist())]
-        return [texts[k] for k in inverse.ravel().tolist()]
+        texts = list(map(repr, uniq.tolist()))
+        if not np.isfinite(uniq).all():
+            for k in np.flatnonzero(~np.isfinite(uniq)).tolist():
+                texts[k] = ""
+        return _take(texts, inverse)
     return list(map(str, np.asarray(v).tolist()))
 
 

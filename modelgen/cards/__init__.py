@@ -193,6 +193,16 @@ def format_number(x):
     return _exponent_form(repr(x))
 
 
+def _take(texts, index):
+    """``[texts[k] for k in index]``, done by itemgetter in C."""
+    index = np.asarray(index).ravel().tolist()
+    if not index:
+        return []
+    if len(index) == 1:
+        return [texts[index[0]]]
+    return list(itemgetter(*index)(texts))
+
+
 def format_numbers(values, cache=None):
     """:func:`format_number` over an array; NaN gives None. Each distinct value is formatted once.
 
@@ -210,7 +220,7 @@ def format_numbers(values, cache=None):
         for k, t in zip(np.flatnonzero(finite).tolist(), texts):
             full[k] = t
         texts = full
-    out = [texts[k] for k in inverse.ravel().tolist()]
+    out = _take(texts, inverse)
     if cache is not None and isinstance(values, np.ndarray):
         cache[id(values)] = (values, out)  # keep the array alive so its id stays unique
     return out
