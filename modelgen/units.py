@@ -113,7 +113,7 @@ def unit_factor(unit_text, kind):
     Factors pint has given once are kept in the user's cache folder (per
     modelgen and pint version), so a later run need not import pint.
     """
-    key = f"{kind}|{unit_text}"
+    key = f"{KINDS[kind][0]}|{unit_text}"  # the SI target and the text: all a factor depends on
     known = _known_factors()
     if key in known:
         return known[key]
