@@ -189,3 +189,13 @@ def test_hostile_name_or_file_name_cannot_run_a_control_line(tmp_path):
     deck.write_text("hostile\n" + out + "V1 a 0 0.5\nD1 a 0 DSW_DEMO\n.op\n.end\n")
     subprocess.run(["ngspice", "-b", str(deck)], capture_output=True, text=True, timeout=60, cwd=tmp_path)
     assert not marker.exists()
+
+
+def test_check_never_runs_what_a_file_carries_besides_cards(tmp_path):
+    need("ngspice")
+    marker = tmp_path / "ran"
+    f = tmp_path / "x.lib"
+    f.write_text(f".model DX D (IS=1e-15 RS=1 CJO=1e-12)\n.control\nshell touch {marker}\n.endc\n")
+    r = CliRunner().invoke(main, ["check", str(f), "--simulator", "ngspice"])
+    assert r.exit_code == 0, r.output
+    assert not marker.exists()

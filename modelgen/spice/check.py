@@ -55,10 +55,12 @@ class Outcome:
 
 
 def split_sections(text):
-    """The library text of each ``.lib`` section (None: outside any section).
+    """The cards of each ``.lib`` section (None: outside any section), ready for a test deck.
 
-    Section lines themselves and ``.end`` are dropped so that each part can
-    be placed in a test deck as it is.
+    Only ``.model`` lines, their ``+`` continuations, comments and blank lines
+    are kept: any other line of the file (a ``.control`` block, an element,
+    an ``.include``) never reaches the simulator, so checking a file cannot
+    run what it might carry besides cards.
     """
     parts, current = {}, None
     for line in text.splitlines():
@@ -72,7 +74,8 @@ def split_sections(text):
             continue
         if head == ".end":
             break
-        parts.setdefault(current, []).append(line)
+        if not head or head.startswith(("*", "+")) or head == ".model":
+            parts.setdefault(current, []).append(line)
     return {k: "\n".join(v) + "\n" for k, v in parts.items()}
 
 
