@@ -30,10 +30,22 @@ def read_text(path, kind="input file"):
         raise InputError(f"cannot be read: {e.strerror or e}", file=name) from None
 
 
+def _file_mode():
+    """The permissions a newly created file gets here (0666 less the umask)."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
 def temporary_beside(path):
-    """A new empty temporary file beside ``path`` (same folder, so a rename is atomic); its name."""
+    """A new empty temporary file beside ``path`` (same folder, so a rename is atomic); its name.
+
+    It gets the permissions an ordinary new file would (mkstemp's own are 0600),
+    so the renamed output is as readable as any other file the user writes.
+    """
     fd, tmp = tempfile.mkstemp(prefix=".modelgen-", suffix=".tmp", dir=os.path.dirname(os.path.abspath(path)))
     os.close(fd)
+    os.chmod(tmp, _file_mode())
     return tmp
 
 

@@ -132,3 +132,13 @@ def test_help_explains_the_command():
     assert r.exit_code == 0
     for word in ("DEVICE.toml", "--output", "--format", "json", "atomically"):
         assert word in r.stdout
+
+
+def test_written_files_get_ordinary_permissions(tmp_path):
+    # an atomic write goes through a temporary file; the output must not keep mkstemp's 0600
+    f = write(tmp_path, GOOD)
+    out = tmp_path / "card.lib"
+    assert run("card", f, "-o", str(out), "-q").exit_code == 0
+    mask = os.umask(0)
+    os.umask(mask)
+    assert (os.stat(out).st_mode & 0o777) == (0o666 & ~mask)
