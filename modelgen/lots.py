@@ -64,10 +64,6 @@ class Table:
     problems: Problems
 
 
-def _is_numeric_kind(kind):
-    return kind not in ("text", "choice", "number")
-
-
 def _convert_column(key, cells, unit, lines, file, problems):
     """SI values of one column; bad cells recorded in ``problems``."""
     spec = KEYS[key]
@@ -457,10 +453,6 @@ def summary_texts(cols, cache=None):
     # the cells are numbers, true/false, SPICE identifiers or words: no quoting needed
     body = "\n".join(map(",".join, zip(*cells.values())))
     return ",".join(cols) + "\n" + body + "\n", cells
-
-
-def _csv_text(cols):
-    return summary_texts(cols)[0]
 
 
 def statistics(cols):

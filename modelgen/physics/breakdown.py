@@ -32,8 +32,6 @@ from ..materials.silicon import Q
 
 #: Nodes per side of the junction in the ionization-integral quadrature.
 NODES_PER_SIDE = 256
-#: Rows of graded junctions solved at a time (each needs 2 NODES_PER_SIDE grid points).
-GRADED_CHUNK = 2000
 #: Bracket for the peak field at breakdown [V/m] (5e4-2e6 V/cm).
 FIELD_BRACKET = (5e6, 2e8)
 
