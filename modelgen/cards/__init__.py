@@ -40,7 +40,8 @@ class Dialect:
     (JSW, CJSW, PHP, MJSW with perimeter factor PJ) and ``"fold"`` where the
     perimeter part is folded into IS and CJO (exact here: the sidewall has the
     bottom junction's physics per area). ``sections``: the target reads
-    ``.lib NAME`` / ``.endl`` sections.
+    ``.lib NAME`` / ``.endl`` sections. ``simulators``: the simulators the
+    dialect's cards are meant for, and so the ones ``check`` runs them in.
     """
 
     name: str
@@ -49,6 +50,7 @@ class Dialect:
     sidewall: str
     sections: bool
     cost: dict
+    simulators: tuple = ()
     template: str = "card.j2"
     library_template: str = "library.j2"
 
@@ -66,7 +68,7 @@ DIALECTS = {
     "spice3": Dialect(
         name="spice3", title="Berkeley SPICE3 level-1 diode",
         carries=("IS", "N", "RS", "CJO", "VJ", "M", "FC", "TT", "BV", "IBV", "EG", "XTI", "TNOM"),
-        sidewall="fold", sections=False, cost=_COST),
+        sidewall="fold", sections=False, cost=_COST, simulators=("ngspice", "gnucap")),
     # ngspice 39 diode: names checked against ngspice's parameter table and its behaviour
     # (PHP is the sidewall potential; VJSW is not accepted; PJ=1 on the model makes the
     # sidewall values totals for one device, as AREA=1 does for the bottom ones)
@@ -74,13 +76,14 @@ DIALECTS = {
         name="ngspice", title="ngspice level-1 diode",
         carries=("IS", "JSW", "N", "RS", "CJO", "CJSW", "VJ", "PHP", "M", "MJSW", "FC", "FCS", "TT",
                  "BV", "IBV", "EG", "XTI", "ISR", "NR", "IKF", "PJ", "TCV", "TRS1", "TRS2", "TNOM"),
-        sidewall="split", sections=True, cost=_COST),
+        sidewall="split", sections=True, cost=_COST, simulators=("ngspice",)),
     # gnucap 0.36 diode: no ISR/NR/IKF; BV is accepted but its default diode path has no breakdown
     "gnucap": Dialect(
         name="gnucap", title="gnucap diode",
         carries=("IS", "N", "RS", "CJO", "VJ", "M", "FC", "TT", "EG", "XTI", "TNOM"),
         sidewall="fold", sections=False,
-        cost={**_COST, "BV": "gnucap 0.36's diode has no breakdown model, so BV would be read and ignored"}),
+        cost={**_COST, "BV": "gnucap 0.36's diode has no breakdown model, so BV would be read and ignored"},
+        simulators=("gnucap",)),
 }
 
 _SIDEWALL = ("JSW", "CJSW", "PHP", "MJSW", "FCS", "PJ")
