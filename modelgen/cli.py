@@ -20,7 +20,7 @@ from dataclasses import replace
 import click
 import numpy as np
 
-from . import __version__, cards, description, extraction
+from . import __version__, cards, description, extraction, targets
 from .errors import InputError
 from .textio import write_atomic
 
@@ -58,6 +58,23 @@ def _emit(text, output):
         click.echo(text, nl=False)
 
 
+class _Dialect(click.ParamType):
+    """A target name, checked against the registry when the option is read (a registered one counts)."""
+
+    name = "dialect"
+
+    def get_metavar(self, param, ctx=None):
+        return "[" + "|".join(sorted(targets.TARGETS)) + "]"
+
+    def convert(self, value, param, ctx):
+        if value in targets.TARGETS:
+            return value
+        self.fail(f"{value!r} is not one of: {', '.join(sorted(targets.TARGETS))}", param, ctx)
+
+
+DIALECT = _Dialect()
+
+
 def _fail(message):
     click.echo(f"modelgen: error: {message}", err=True)
     sys.exit(EXIT_INPUT)
@@ -93,7 +110,7 @@ def main():
 @click.option("--format", "fmt", type=click.Choice(["card", "json"]), default="card", show_default=True,
               help="card: SPICE .model text. json: parameters, derived quantities and warnings, all in SI units "
                    "(A, V, F, s, ohm, K, m; EG in eV); a list when several devices are given.")
-@click.option("--dialect", type=click.Choice(sorted(cards.DIALECTS)), default="spice3", show_default=True,
+@click.option("--dialect", type=DIALECT, default="spice3", show_default=True,
               help="Simulator dialect: spice3 (portable SPICE3 level-1 set), ngspice (adds ISR, NR, IKF and "
                    "sidewall terms), gnucap (gnucap's diode set).")
 @click.option("--section", metavar="NAME",
@@ -122,8 +139,7 @@ def card_command(device_files, output, fmt, dialect, section, quiet):
         except InputError as e:
             _fail(str(e.located(file=f)))
     if fmt == "json":
-        texts = [cards.as_json(r, 0) for r, _ in loaded]
-        text = texts[0] if len(texts) == 1 else "[\n" + ",\n".join(t.rstrip("\n") for t in texts) + "\n]\n"
+        text = cards.as_json_list([cards.row_document(r, 0) for r, _ in loaded])
     elif len(loaded) == 1 and section is None:
         text = cards.card(loaded[0][0], 0, dialect=dialect, inputs=loaded[0][1])
     else:
@@ -187,7 +203,7 @@ def check_command(card_file, simulator):
     sys.exit(EXIT_MISMATCH if bad else 0)
 
 
-def _temperature_c(text):
+def _temperature_c(text, key):
     """A corner temperature: a bare number is degC; otherwise a quantity with its unit."""
     from .units import parse_quantity
 
@@ -196,31 +212,32 @@ def _temperature_c(text):
     except ValueError:
         pass
     try:
-        return parse_quantity(text, "temperature", key="--at") - 273.15
+        return parse_quantity(text, "temperature", key=key) - 273.15
     except InputError as e:
         _fail(str(e))
-
-
-def _percent(x):
-    return f"{100 * x:.3g} %"
 
 
 @main.command("corners")
 @click.argument("device_file", metavar="DEVICE.toml", type=click.Path(dir_okay=False))
 @click.option("--at", "at", multiple=True, metavar="TEMP",
-              help="A corner temperature; degC unless a unit is given (\"300 K\"). Repeat for more.")
+              help="A corner temperature; degC unless a unit is given (\"300 K\"). Repeat for more. With a "
+                   "range, the corners are the union of both.")
 @click.option("--from", "t_from", metavar="TEMP", help="First temperature of a range (with --to and --step).")
-@click.option("--to", "t_to", metavar="TEMP", help="Last temperature of a range.")
+@click.option("--to", "t_to", metavar="TEMP",
+              help="Last temperature of a range, included when a step lands on it (within 1e-9 K).")
 @click.option("--step", "t_step", type=float, metavar="K", help="Step of the range [K].")
 @click.option("--per-corner", is_flag=True,
-              help="One card per temperature (name suffixed _M40, _27, _125 ..., TNOM the corner) in one library, "
-                   "a .lib section per corner where the dialect has them.")
-@click.option("--dialect", type=click.Choice(sorted(cards.DIALECTS)), default="spice3", show_default=True,
-              help="Simulator dialect; ngspice also fits TCV (BV) and TRS1/TRS2 (RS).")
+              help="One card per temperature, TNOM the corner, in one library: in a .lib section per corner "
+                   "(TM40, T27, T125 ...) with the device's own model name where the dialect has sections, "
+                   "else with the name suffixed _M40, _27, _125 ... No fit.")
+@click.option("--dialect", type=DIALECT, default="spice3", show_default=True,
+              help="Simulator dialect; ngspice also fits TCV (BV) and TRS1/TRS2 (RS), which spice3 and gnucap "
+                   "cards cannot carry.")
 @click.option("--format", "fmt", type=click.Choice(["card", "json"]), default="card", show_default=True,
-              help="card: SPICE text. json: every corner's parameters and derived quantities, and the fit.")
-@click.option("--max-error", type=float, default=5.0, show_default=True, metavar="PERCENT",
-              help="Warn when the fitted card misses the physics by more than this at a corner.")
+              help="card: SPICE text. json: every corner's parameters and derived quantities (SI units), and "
+                   "the fit with its worst errors in percent.")
+@click.option("--max-error", type=click.FloatRange(0, None, min_open=True), default=5.0, show_default=True,
+              metavar="PERCENT", help="Warn when the fitted card misses the physics by more than this at a corner.")
 @click.option("-o", "--output", type=click.Path(dir_okay=False, writable=True),
               help="Write to this file (atomically) instead of stdout.")
 @click.option("-q", "--quiet", is_flag=True, help="Print only errors on stderr.")
@@ -232,10 +249,11 @@ def corners_command(device_file, at, t_from, t_to, t_step, per_corner, dialect, 
     lifetime_temperature_exponent to scale lifetimes). By default one card at
     the nominal temperature is written, with EG and XTI (ngspice: also TCV,
     TRS1, TRS2) least-squares fitted so that the simulator's own temperature
-    scaling reproduces the physics at every corner; the worst relative error
-    of IS, ISR, CJO, BV and RS over the corners is printed and written into
-    the card header. With no temperatures given the corners are -40, 27, 85
-    and 125 degC.
+    scaling reproduces the physics at every corner; this needs at least two
+    corners besides the nominal temperature. The worst relative error of IS,
+    ISR, CJO, BV and RS over the corners is printed and written into the
+    card header. With no temperatures given the corners are -40, 27, 85 and
+    125 degC.
 
     \b
     Examples:
@@ -245,64 +263,21 @@ def corners_command(device_file, at, t_from, t_to, t_step, per_corner, dialect, 
     """
     from . import corners
 
-    temps = [_temperature_c(a) for a in at]
-    if any(x is not None for x in (t_from, t_to, t_step)):
-        if None in (t_from, t_to, t_step) or t_step <= 0:
-            _fail("--from, --to and --step go together, with a positive step")
-        lo, hi = _temperature_c(t_from), _temperature_c(t_to)
-        temps += list(np.round(np.arange(lo, hi + 0.5 * t_step, t_step), 9))
-    if not temps:
-        temps = list(corners.DEFAULT_CORNERS_C)
-    temps = sorted(set(float(t) for t in temps))
-    if temps[0] <= -273.15 + 50 or temps[-1] >= 700 - 273.15:
-        _fail("corner temperatures must lie within 50-700 K (the material models' range)")
+    at_c = [_temperature_c(a, "--at") for a in at]
+    start = _temperature_c(t_from, "--from") if t_from is not None else None
+    stop = _temperature_c(t_to, "--to") if t_to is not None else None
     try:
+        temps = corners.corner_temperatures(at_c, start, stop, t_step)
         device, raw = description.load_with_inputs(device_file)
+        r = corners.run(device, temps, dialect, per_corner=per_corner, max_error=max_error / 100)
+        if fmt == "json":
+            text = cards.dumps(corners.document(r))
+        else:
+            text = corners.card_text(r, inputs=raw)
     except InputError as e:
-        _fail(str(e.located(file=device_file)))
-    nominal_c = round(float(device.temperature[0]) - 273.15, 9)
-    evaluated = sorted(set(temps) | {nominal_c})
-    try:
-        result = corners.evaluate(device, np.array(evaluated) + 273.15)
-    except InputError as e:
-        _fail(str(e.located(file=device_file)))
-    nominal = evaluated.index(nominal_c)
-    fitted = corners.fit(result, nominal, dialect)
-    span = f"{temps[0]:g} to {temps[-1]:g} degC ({', '.join(f'{t:g}' for t in temps)})"
-    fit_lines = [f"temperature fit over {span}, dialect {dialect}:",
-                 "  fitted " + ", ".join(f"{k}={cards.format_number(v)}" for k, v in fitted.values.items()),
-                 "  worst error over the corners: " + ", ".join(f"{k} {_percent(v)}"
-                                                               for k, v in fitted.worst_error.items())]
-    over = {k: v for k, v in fitted.worst_error.items() if v > max_error / 100}
-    warn = [f"warning: the single card misses the physics at some corner by more than {max_error:g} %: "
-            + ", ".join(f"{k} {_percent(v)}" for k, v in over.items())] if over else []
-    if fmt == "json":
-        rows = []
-        for k, t in enumerate(evaluated):
-            if t in temps:
-                r = cards.row_document(result, k)
-                rows.append({"temperature": r["derived"]["temperature"], "params": r["params"],
-                             "derived": r["derived"]})
-        doc = {"name": device.name[0], "dialect": dialect, "corners": rows,
-               "fit": {**fitted.values, "worst_error": fitted.worst_error},
-               "warnings": result.warnings(nominal) + warn}
-        text = json.dumps(cards.json_safe(doc), indent=2, allow_nan=False) + "\n"
-    elif per_corner:
-        idx = [evaluated.index(t) for t in temps]
-        names = tuple(f"{device.name[0]}_{corners.corner_tag(t)}" for t in evaluated)
-        if max(len(n) for n in names) > 64:
-            _fail(f"{device_file}: name: too long for a corner suffix (64 characters at most)")
-        renamed = corners.evaluate(replace(device, name=(names[0],)), np.array(evaluated) + 273.15)
-        renamed = replace(renamed, device=replace(renamed.device, name=names))
-        sectioned = cards.DIALECTS[dialect].sections
-        parts = [(f"T{corners.corner_tag(evaluated[k])}" if sectioned else None, renamed, k, raw) for k in idx]
-        text = cards.library(parts, dialect=dialect, title=f"{device.name[0]} at {len(idx)} temperature corners",
-                             extra=fit_lines[:1] + ["per-corner cards: each has its own TNOM"])
-    else:
-        text = cards.card(result, nominal, dialect=dialect, inputs=raw, overrides=fitted.values,
-                          extra=fit_lines + warn)
+        _fail(str(e.located(file=device_file) if e.key != "--at" else e))
     if not quiet:
-        for line in fit_lines + warn:
+        for line in r.fit_lines() + r.warnings():
             click.echo(f"modelgen: {line.strip()}", err=True)
     _emit(text, output)
 
@@ -316,7 +291,7 @@ def corners_command(device_file, at, t_from, t_to, t_step, per_corner, dialect, 
 @click.option("--name", "name_pattern", metavar="PATTERN",
               help="Model names when the table has no name column: {row} is the line number, {index} the "
                    "0-based row, e.g. \"DLOT{row:05d}\".")
-@click.option("--dialect", type=click.Choice(sorted(cards.DIALECTS)), default="spice3", show_default=True,
+@click.option("--dialect", type=DIALECT, default="spice3", show_default=True,
               help="Simulator dialect of the cards.")
 @click.option("--keep-going", is_flag=True,
               help="Write the good rows and list the bad ones (exit status 4) instead of writing nothing.")
@@ -402,7 +377,7 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
             check_name(corner_name, key="--corner-name")
             for section, i, pct in lots.corner_rows(result, corner_spec):
                 corner_cards.append((section, corner_name, i,
-                                     f"corner {section}: the row at the {pct:.4g} th percentile of IS "
+                                     f"corner {section}: the row at the {_ordinal(pct)} percentile of IS "
                                      f"({result.device.name[i]}), a real row so its parameters stay consistent"))
         if corner_spec and not cards.DIALECTS[dialect].sections:
             raise ValueError(f"the {dialect} dialect has no .lib sections")
@@ -425,6 +400,14 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
         click.echo(f"modelgen: {len(result)} cards written to {output}; summary in {prefix}.csv and "
                    f"{prefix}.json" + (f"; {len(skipped)} problems, rows skipped" if skipped else ""), err=True)
     sys.exit(EXIT_SKIPPED if errors else 0)
+
+
+def _ordinal(x):
+    """5 -> '5th', 1 -> '1st', 2.5 -> '2.5th', 0.135 -> '0.135th'."""
+    text = f"{x:.4g}"
+    if text.isdigit() and not 10 <= int(text) % 100 <= 20:
+        return text + {1: "st", 2: "nd", 3: "rd"}.get(int(text) % 10, "th")
+    return text + "th"
 
 
 def run():

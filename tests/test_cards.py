@@ -54,5 +54,5 @@ def test_hostile_input_text_stays_in_comments():
     result = extraction.derive(description.from_mapping(table, file="x\n.control\nshell echo pwned\n.endc"))
     text = cards.card(result, 0, inputs={"p.doping": "1e18 cm^-3\n.control\n.endc\r.end"})
     for line in text.splitlines():
-        assert line.startswith(("*", ".model DSAFE D (", "+ ")), line
+        assert line == "" or line.startswith(("* ", ".model DSAFE D (", "+ ")), line
     assert sum(line.startswith(".") for line in text.splitlines()) == 1

@@ -42,7 +42,7 @@ def test_every_example_gives_a_card_and_json(example):
     r = run("card", str(example), "-q")
     assert r.exit_code == 0, r.output
     lines = r.stdout.splitlines()
-    model = [ln for ln in lines if not ln.startswith("*")]
+    model = [ln for ln in lines if ln and not ln.startswith("*")]
     assert model[0].startswith(".model ") and model[0].endswith(" D (")
     assert all(ln.startswith("+ ") for ln in model[1:])
     assert any("CAUTION" in ln for ln in lines)

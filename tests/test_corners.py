@@ -173,10 +173,16 @@ def test_per_corner_library_loads_in_the_simulators(tmp_path, dialect, simulator
     assert r.exit_code == 0, r.output
     text = out.read_text()
     outcomes = check.check_text(text, [simulator])
-    assert sorted(o.model for o in outcomes) == ["DSW_DEMO_125", "DSW_DEMO_27", "DSW_DEMO_M40"]
     assert all(o.ok for o in outcomes), outcomes
     if cards.DIALECTS[dialect].sections:
-        assert {o.section for o in outcomes} == {"TM40", "T27", "T125"}
+        # one model name in every section: switching corners changes one .lib line, not every instance
+        assert sorted((o.section, o.model) for o in outcomes) == [("T125", "DSW_DEMO"), ("T27", "DSW_DEMO"),
+                                                                  ("TM40", "DSW_DEMO")]
+    else:
+        assert sorted(o.model for o in outcomes) == ["DSW_DEMO_125", "DSW_DEMO_27", "DSW_DEMO_M40"]
+    # per-corner cards are not a fit: no message about a single card, and no dangling header lines
+    assert "single card" not in text and "single card" not in r.stderr
+    assert "temperature fit" not in text and "fitted EG" not in text
 
 
 # --- the command line -------------------------------------------------------------
@@ -187,10 +193,20 @@ def test_corners_json_and_temperature_parsing():
     assert r.exit_code == 0, r.output
     j = json.loads(r.stdout)
     temps = [c["temperature"] for c in j["corners"]]
-    assert temps == pytest.approx([233.15, 300.0, 398.15])  # 257 degF = 125 degC
-    assert set(j["fit"]) >= {"EG", "XTI", "worst_error"}
-    assert set(j["fit"]["worst_error"]) >= {"IS", "CJO", "BV"}
-    assert all(set(c) == {"temperature", "params", "derived"} for c in j["corners"])
+    # temperatures as given: -40 degC is 233.15 K, not 233.14999999999998
+    assert temps[0] == 233.15 and temps[1] == 300.0
+    assert temps[2] == pytest.approx(398.15, abs=1e-9)  # 257 degF = 125 degC
+    assert [c["temperature_c"] for c in j["corners"]][0] == -40
+    assert set(j["fit"]) >= {"EG", "XTI", "worst_error_percent"}
+    assert set(j["fit"]["worst_error_percent"]) >= {"IS", "CJO", "BV"}
+    assert all(set(c) == {"temperature", "temperature_c", "params", "derived"} for c in j["corners"])
+    # errors in percent everywhere: the JSON's figures are the ones stderr prints
+    r2 = CliRunner().invoke(main, ["corners", str(ROOT / "examples" / "thin_epi_rectifier.toml"),
+                                   "--at", "-40", "--at", "300 K", "--at", "257 degF"])
+    is_pct = j["fit"]["worst_error_percent"]["IS"]
+    assert f"IS {is_pct:.3g} %" in r2.stderr
+    # units for the derived quantities as for the parameters
+    assert j["derived_units"]["p"]["doping"] == "m^-3" and j["derived_units"]["temperature"] == "K"
 
 
 def test_corners_card_header_carries_the_fit_and_range_option_works():
@@ -209,3 +225,49 @@ def test_corners_bad_temperature_is_exit_2():
     assert r.exit_code == 2 and "--at" in r.stderr
     r = CliRunner().invoke(main, ["corners", str(ROOT / "examples" / "switching_diode.toml"), "--from", "0"])
     assert r.exit_code == 2
+
+
+def test_a_fit_needs_two_corners_besides_the_nominal():
+    # one corner cannot fit EG and XTI: exit 2 with a one-line reason, not EG=0 XTI=0 with exit 0
+    dev = str(ROOT / "examples" / "switching_diode.toml")
+    for args in (["--at", "27"], ["--at", "85"], ["--at", "27", "--at", "85"]):
+        r = CliRunner().invoke(main, ["corners", dev, *args])
+        assert r.exit_code == 2, (args, r.output)
+        assert len(r.stderr.strip().splitlines()) == 1 and "at least two corners" in r.stderr
+        assert "EG=0" not in r.stdout
+    # per-corner cards need no fit: a single temperature is fine there
+    r = CliRunner().invoke(main, ["corners", dev, "--at", "85", "--per-corner", "--dialect", "ngspice"])
+    assert r.exit_code == 0, r.output
+    assert "TNOM=8.5e+01" in r.stdout
+
+
+def test_range_includes_its_end_point_and_unions_with_at():
+    # 0.1 K steps accumulate rounding: 0 to 0.3 by 0.1 must still end at 0.3
+    assert corners.corner_temperatures((), 0.0, 0.3, 0.1) == [0.0, 0.1, 0.2, 0.3]
+    assert corners.corner_temperatures((), -40.0, 125.0, 15.0)[-1] == 125.0
+    # a step that does not land on the end stops before it
+    assert corners.corner_temperatures((), 0.0, 10.0, 4.0) == [0.0, 4.0, 8.0]
+    # --at plus a range: the documented union, sorted, without duplicates
+    assert corners.corner_temperatures((150.0, 0.0), 0.0, 20.0, 10.0) == [0.0, 10.0, 20.0, 150.0]
+
+
+@pytest.mark.parametrize("args", [["--from", "0", "--to", "100", "--step", "1e-300"],
+                                  ["--from", "0", "--to", "inf", "--step", "1"],
+                                  ["--from", "0", "--to", "nan", "--step", "1"],
+                                  ["--from", "0", "--to", "100", "--step", "0"],
+                                  ["--from", "100", "--to", "0", "--step", "1"],
+                                  ["--at", "1e300"]])
+def test_absurd_ranges_are_a_clear_error_not_a_hang(args):
+    r = CliRunner().invoke(main, ["corners", str(ROOT / "examples" / "switching_diode.toml"), *args])
+    assert r.exit_code == 2, r.output
+    assert len(r.stderr.strip().splitlines()) == 1 and "Traceback" not in r.output
+
+
+def test_spice3_corners_say_which_dialect_carries_the_rs_and_bv_laws():
+    # spice3 cards have no TCV/TRS: the RS and BV errors get a hint instead of silence
+    r = CliRunner().invoke(main, ["corners", str(ROOT / "examples" / "switching_diode.toml")])
+    assert r.exit_code == 0
+    assert "no temperature coefficient for RS and BV" in r.stderr and "ngspice dialect fits them" in r.stderr
+    r = CliRunner().invoke(main, ["corners", str(ROOT / "examples" / "switching_diode.toml"), "--dialect",
+                                  "ngspice"])
+    assert "no temperature coefficient" not in r.stderr

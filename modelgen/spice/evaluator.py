@@ -22,32 +22,24 @@ simulator. It works at the card's TNOM (temperature scaling comes later).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 
-
-@dataclass(frozen=True)
-class Simulator:
-    """Constants and equation variants of one simulator."""
-
-    name: str
-    boltzmann: float
-    charge: float
-    gmin: float               # default GMIN across the junction [S]
-    reverse_tail: bool        # SPICE's -IS (1 + (3 N Vt / (e V))^3) below -3 N Vt
-    breakdown: bool           # BV / IBV modelled
-    recombination: bool       # ISR / NR
-    knee: bool                # IKF
-    sidewall_current: bool    # JSW with PJ
+from .. import targets
 
 
-SIMULATORS = {
-    # ngspice 39 src/include/ngspice/const.h: CODATA 2014 values
-    "ngspice": Simulator("ngspice", 1.38064852e-23, 1.6021766208e-19, 1e-12, True, True, True, True, True),
-    # gnucap 0.36 include/constant.h: the values "(spice)"
-    "gnucap": Simulator("gnucap", 1.3806226e-23, 1.6021918e-19, 0.0, False, False, False, False, False),
-}
+#: The simulators and their constants and equation variants (see :mod:`modelgen.targets`).
+SIMULATORS = targets.SIMULATORS
+
+
+def simulator_of(simulator):
+    """The :class:`~modelgen.targets.Simulator` for a name (or the object itself)."""
+    if isinstance(simulator, targets.Simulator):
+        return simulator
+    try:
+        return SIMULATORS[simulator]
+    except KeyError:
+        raise KeyError(f"unknown simulator {simulator!r}; known: {', '.join(SIMULATORS)}") from None
+
 
 #: SPICE defaults of the parameters the evaluator uses (common practice;
 #: ngspice manual, diode model table).
@@ -71,7 +63,7 @@ def _params(card):
 
 def thermal_voltage(card, simulator="ngspice", temperature_c=None):
     """kT/q at ``temperature_c`` (default the card's TNOM) with the simulator's constants [V]."""
-    s = SIMULATORS[simulator]
+    s = simulator_of(simulator)
     t = (_params(card)["TNOM"] if temperature_c is None else temperature_c) + 273.15
     return s.boltzmann * t / s.charge
 
@@ -94,14 +86,16 @@ def adjusted(card, temperature_c=None, simulator="ngspice"):
     - BV(T) = BV - TCV (T - TNOM); RS(T) = RS (1 + TRS1 dT + TRS2 dT^2);
       TT(T) = TT (1 + TTT1 dT + TTT2 dT^2).
 
-    gnucap 0.36 rescales IS alone, with (T/TNOM)^XTI (XTI not divided by N).
+    gnucap 0.36 (temperature law ``"saturation_only"``) rescales IS alone,
+    with (T/TNOM)^XTI (XTI not divided by N).
 
     Parameters
     ----------
     card : dict
     temperature_c : float, optional
         Circuit temperature [degC]; default TNOM (no change).
-    simulator : {'ngspice', 'gnucap'}
+    simulator : str or Simulator
+        A key of :data:`SIMULATORS`; its ``temperature_law`` decides the equations.
 
     Returns
     -------
@@ -109,7 +103,7 @@ def adjusted(card, temperature_c=None, simulator="ngspice"):
         All parameters, the temperature-dependent ones rescaled, with ``T``
         the temperature [K].
     """
-    sim = SIMULATORS[simulator]
+    sim = simulator_of(simulator)
     p = _params(card)
     tnom = p["TNOM"] + 273.15
     t = tnom if temperature_c is None else temperature_c + 273.15
@@ -118,7 +112,7 @@ def adjusted(card, temperature_c=None, simulator="ngspice"):
         return p
     vt = sim.boltzmann * t / sim.charge
     ratio = t / tnom
-    if simulator == "gnucap":
+    if sim.temperature_law == "saturation_only":
         p["IS"] = p["IS"] * ratio ** p["XTI"] * np.exp(p["EG"] / (p["N"] * vt) * (ratio - 1))
         return p
 
@@ -192,8 +186,8 @@ def junction_current(card, vd, simulator="ngspice", gmin=None, temperature_c=Non
         Current [A] and d(bottom diode current)/dV before the knee and GMIN
         [S], which is what multiplies TT in the diffusion capacitance.
     """
-    s = SIMULATORS[simulator]
-    p = adjusted(card, temperature_c, simulator)
+    s = simulator_of(simulator)
+    p = adjusted(card, temperature_c, s)
     g = s.gmin if gmin is None else gmin
     vd = np.asarray(vd, float)
     vt = s.boltzmann * p["T"] / s.charge
@@ -301,8 +295,9 @@ def capacitance(card, v, simulator="ngspice", gmin=None, temperature_c=None):
     _, gb = junction_current(card, vd, simulator, gmin, temperature_c)
     c = _depletion(p["CJO"] * p["AREA"], p["VJ"], p["M"], p["FC"], vd)
     # gnucap 0.36 takes the perimeter only from the instance (default 0), never from the card
-    pj = p["PJ"] if SIMULATORS[simulator].sidewall_current else 0.0
+    sim = simulator_of(simulator)
+    pj = p["PJ"] if sim.sidewall_current else 0.0
     if p["CJSW"] > 0 and pj > 0:
-        fcs = p["FCS"] if simulator == "ngspice" else p["FC"]
+        fcs = p[sim.sidewall_capacitance_fc]
         c = c + _depletion(p["CJSW"] * pj, p["PHP"], p["MJSW"], fcs, vd)
     return c + p["TT"] * gb
