@@ -118,7 +118,8 @@ class Target:
         For each card parameter the target cannot carry, what leaving it out
         costs (said in the card header).
     template, library_template : str
-        Jinja2 templates of one card and of a library (in ``templates/``).
+        Jinja2 templates of one card and of a library: a name in the
+        package's ``templates/`` folder, or an absolute path.
     """
 
     name: str

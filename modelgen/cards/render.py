@@ -48,11 +48,24 @@ def _template_dir():
 _ENV = None
 
 
+def _template_file(name):
+    """A template given by its absolute path (a target registered from outside the package)."""
+    path = Path(name)
+    if path.is_absolute() and path.is_file():
+        return path.read_text(encoding="utf-8")
+    return None
+
+
 def environment():
-    """The jinja2 environment over the templates folder (strict: a missing value is an error)."""
+    """The jinja2 environment: templates by name from the templates folder, or by absolute path.
+
+    Strict: a value a template asks for and does not get is an error.
+    """
     global _ENV
     if _ENV is None:
-        _ENV = jinja2.Environment(loader=jinja2.FileSystemLoader(str(_template_dir())),
+        loader = jinja2.ChoiceLoader([jinja2.FileSystemLoader(str(_template_dir())),
+                                      jinja2.FunctionLoader(_template_file)])
+        _ENV = jinja2.Environment(loader=loader,
                                   autoescape=False, keep_trailing_newline=True,
                                   undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True)
     return _ENV
