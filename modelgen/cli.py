@@ -12,10 +12,8 @@ simulator to check with; 4 a lot table was written with bad rows skipped
 
 from __future__ import annotations
 
-import json
 import os
 import sys
-from dataclasses import replace
 
 import click
 import numpy as np

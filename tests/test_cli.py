@@ -3,15 +3,10 @@
 import json
 import math
 import os
-from pathlib import Path
 
 import pytest
-from click.testing import CliRunner
 
-from modelgen.cli import main
-
-ROOT = Path(__file__).resolve().parent.parent
-EXAMPLES = sorted((ROOT / "examples").glob("*.toml"))
+from support import EXAMPLES, run
 
 GOOD = """
 name = "DOK"
@@ -25,10 +20,6 @@ doping = "1e16 cm^-3"
 thickness = "50 um"
 lifetime = "1 us"
 """
-
-
-def run(*args):
-    return CliRunner().invoke(main, list(args))
 
 
 def write(tmp_path, text, name="dev.toml"):

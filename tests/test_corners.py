@@ -1,8 +1,6 @@
 """Temperature corners: material laws vs published data, the fitted card vs ngspice."""
 
 import json
-import os
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -13,18 +11,9 @@ from modelgen.cli import main
 from modelgen.materials import silicon as si
 from modelgen.spice import check, evaluator
 
-ROOT = Path(__file__).resolve().parent.parent
-EXAMPLES = sorted((ROOT / "examples").glob("*.toml"))
+from support import EXAMPLES, ROOT, need
+
 CORNERS_C = np.array([-40.0, 27.0, 85.0, 125.0])
-IN_CI = os.environ.get("CI", "").lower() == "true"
-
-
-def need(simulator):
-    if not check.installed(simulator):
-        msg = f"{simulator} is not installed (Debian package: {check.PACKAGES[simulator]})"
-        if IN_CI:
-            pytest.fail(msg)
-        pytest.skip(msg)
 
 
 # --- material laws over 250-450 K ------------------------------------------------

@@ -6,8 +6,6 @@ work in the renderer, the evaluator, the temperature fit, `check` and the comman
 any change elsewhere.
 """
 
-import os
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -18,9 +16,9 @@ from modelgen.cards import reader
 from modelgen.cli import main
 from modelgen.spice import check, evaluator
 
-ROOT = Path(__file__).resolve().parent.parent
+from support import ROOT, need
+
 EXAMPLE = ROOT / "examples" / "switching_diode.toml"
-IN_CI = os.environ.get("CI", "").lower() == "true"
 
 ONE_LINE = """{% for line in card.header %}
 {{ line }}
@@ -82,10 +80,7 @@ def test_toy_target_in_the_evaluator_and_the_temperature_fit(toy):
 
 
 def test_toy_target_proven_in_its_simulator(toy):
-    if not check.installed("ngspice"):
-        if IN_CI:
-            pytest.fail("ngspice is not installed (Debian package: ngspice)")
-        pytest.skip("ngspice is not installed (Debian package: ngspice)")
+    need("ngspice")
     r = extraction.derive(description.load(EXAMPLE))
     text = cards.card(r, 0, dialect="toyline")
     outcomes = check.check_text(text, list(toy.simulators))
