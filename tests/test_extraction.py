@@ -12,7 +12,8 @@ import numpy as np
 import pytest
 from scipy import constants as sc
 
-from modelgen import description, extraction
+from modelgen import description, extraction, materials
+from modelgen import device as device_module
 
 Q, K = sc.e, sc.k
 T = 300.15
@@ -247,3 +248,71 @@ def test_batch_equals_single():
     for i, single in enumerate((extraction.derive(a), extraction.derive(b))):
         for k in extraction.PARAMETERS:
             assert both.params[k][i] == single.params[k][0], k
+
+
+# ---- the material interface, and devices grouped by material ------------------------------------------
+
+def _toy_material():
+    """Silicon with half its intrinsic density: an invented second material for the interface test."""
+    import types
+
+    from modelgen.materials import silicon
+    toy = types.SimpleNamespace(**{k: getattr(silicon, k) for k in materials.REQUIRED})
+    toy.NAME = "toy"
+    toy.SOURCES = {"ni": "invented for the test: half of silicon's"}
+    toy.intrinsic_density = lambda t: 0.5 * silicon.intrinsic_density(t)
+    return toy
+
+
+def test_silicon_provides_the_material_interface():
+    from modelgen.materials import silicon
+    assert isinstance(silicon, materials.Material)
+    assert materials.missing(silicon) == []
+    lacking = _toy_material()
+    del lacking.bandgap_narrowing
+    assert not isinstance(lacking, materials.Material)
+    with pytest.raises(TypeError, match="bandgap_narrowing"):
+        materials.register(lacking)
+
+
+def test_a_second_material_goes_through_derive_grouped_by_material(monkeypatch):
+    monkeypatch.setitem(materials.MATERIALS, "toy", materials.register(_toy_material()))
+    toy_table = {**PLAIN, "name": "DTOY", "material": "toy"}
+    si_alone = extraction.derive(description.from_mapping(PLAIN, file="si"))
+    toy_alone = extraction.derive(description.from_mapping(toy_table, file="toy"))
+    mixed = extraction.derive(device_module.concatenate([
+        description.from_mapping(PLAIN, file="si"), description.from_mapping(toy_table, file="toy"),
+        description.from_mapping(PLAIN, file="si")]))
+    assert mixed.device.material == ("silicon", "toy", "silicon")
+    for i, alone in ((0, si_alone), (1, toy_alone), (2, si_alone)):
+        for k in extraction.PARAMETERS:
+            assert np.array_equal(mixed.params[k][i], alone.params[k][0], equal_nan=True), (i, k)
+        assert mixed.warnings(i) == alone.warnings(0)
+    si, toy = si_alone.row(0), toy_alone.row(0)
+    # the toy's own ni is used: J0 goes as ni^2 on each side (Shockley 1949), Vbi = kT/q ln(NA ND / ni^2)
+    # rises by 2 kT/q ln 2 (Sze & Ng 2007 sec. 2.2.1), and the breakdown field does not depend on ni,
+    # so BV = V(E0) - Vbi falls by as much
+    assert toy["params"]["IS"] == pytest.approx(0.25 * si["params"]["IS"], rel=1e-12)
+    vt = K * si["derived"]["temperature"] / Q
+    assert toy["derived"]["builtin_voltage"] - si["derived"]["builtin_voltage"] == pytest.approx(
+        2 * vt * math.log(2), rel=1e-9)
+    assert si["params"]["BV"] - toy["params"]["BV"] == pytest.approx(2 * vt * math.log(2), rel=1e-6)
+    assert "invented for the test: half of silicon's" in mixed.sources.values()
+
+
+# ---- findings carry a severity and a kind ------------------------------------------------------------
+
+def test_findings_have_severity_and_kind_and_keep_the_old_text():
+    r = extraction.derive(description.from_mapping({**PLAIN, "n": {"doping": "1e16 cm^-3", "thickness": "50 um"}}))
+    found = r.findings_for(0)
+    kinds = {m.kind: m.severity for m in found}
+    assert kinds["lifetime_modelled"] == "warning"
+    assert kinds["regime"] == "note"
+    assert kinds["breakdown_estimate"] == "caution"
+    assert set(kinds) <= set(extraction.KINDS)
+    prefix = {"note": "note: ", "warning": "", "caution": "caution: "}
+    assert r.warnings(0) == [prefix[m.severity] + m.text for m in found]
+    assert r.rows_by_kind() == {"lifetime_modelled": 1}
+    # the older form, a prefix in the text, still reads as a severity
+    old = extraction.Finding(np.ones(1, bool), "note: x {a}", {"a": np.array([1])})
+    assert (old.severity, old.template, old.text, old.message(0)) == ("note", "x {a}", "note: x {a}", "note: x 1")

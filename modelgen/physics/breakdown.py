@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..materials.silicon import Q
+from ..constants import EPS0, Q
 
 #: Nodes per side of the junction in the ionization-integral quadrature.
 NODES_PER_SIDE = 256
@@ -149,7 +149,9 @@ def _gauss_rule(order):
     return x, 0.5 * w, integ @ np.linalg.inv(vander)
 
 
-_EPS_SI = 11.9 * 8.8541878128e-12  # only to turn slopes back into a doping for the starting guess
+#: Permittivity at which the starting guess's critical-field law holds (silicon, 11.9: Sze & Ng 2007);
+#: it only turns field slopes back into a doping for the first bracket, never enters a result.
+_GUESS_PERMITTIVITY = 11.9 * EPS0
 
 #: Table of the critical field of thick abrupt junctions: log10 of the field slopes
 #: q N / eps [V/m^2] from 8 to 20 (doping from ~1e11 to ~1e23 cm^-3), 8 points a decade.
@@ -346,7 +348,7 @@ def _solve_abrupt(sn, sp, tn, tp, temp, coefficients, breakpoint):
                                                  coefficients, breakpoint))
 
     # starting bracket around the one-sided critical field 4010 N^(1/8) V/cm (Baliga 2008, from memory)
-    n_eff = _EPS_SI / Q * sn * sp / (sn + sp) / 1e6  # effective doping [cm^-3] at silicon's permittivity
+    n_eff = _GUESS_PERMITTIVITY / Q * sn * sp / (sn + sp) / 1e6  # effective doping [cm^-3] at silicon's permittivity
     guess = np.log(np.clip(4.01e5 * n_eff ** 0.125, *FIELD_BRACKET))
     lo_lim, hi_lim = np.log(FIELD_BRACKET[0]), np.log(FIELD_BRACKET[1])
     a, b = np.maximum(guess - 0.3, lo_lim), np.minimum(guess + 0.3, hi_lim)
