@@ -270,24 +270,28 @@ def test_linear_graded_sze_gibbons_trend(a_cm4):
     assert 0.75 * sg <= bv[0] <= 1.25 * sg
 
 
-def test_table_of_thick_junctions_matches_the_direct_solution():
-    # The cached critical-field table (bicubic in log slope) against the direct solver on the same
-    # devices; both are modelgen's, so this checks the interpolation only. The independent checks
-    # above go through the table for thick junctions.
-    import numpy as np
-    from modelgen.physics import breakdown as b
-    from modelgen.materials import silicon as s
+@pytest.mark.parametrize("temperature", [233.15, 300.15, 312.4, 398.15])
+def test_table_of_thick_junctions_matches_the_direct_solution(temperature):
+    # The cached critical-field table (bicubic in log slope, cubic in temperature) against the direct
+    # solver on the same devices; both are modelgen's, so this checks the interpolation only. The
+    # independent checks above go through the table for thick junctions.
     rng = np.random.default_rng(7)
     n = 400
     na, nd = 10 ** rng.uniform(21, 26, n), 10 ** rng.uniform(20, 23.5, n)
     inf = np.full(n, np.inf)
-    args = (np.full(n, 0.7), na, nd, inf, inf, np.zeros(n), np.zeros(n, bool), np.full(n, 11.9 * s.EPS0),
-            np.full(n, 300.15), s.ionization_coefficients)
-    bv_t, *_ = b.breakdown_voltage(*args, breakpoint=s.IONIZATION_BREAKPOINT)
-    bv_d, *_ = b.breakdown_voltage(*args, breakpoint=s.IONIZATION_BREAKPOINT, use_table=False)
+    args = (np.full(n, 0.7), na, nd, inf, inf, np.zeros(n), np.zeros(n, bool), np.full(n, EPS),
+            np.full(n, temperature), si.ionization_coefficients)
+    bv_t, *_ = bd.breakdown_voltage(*args, breakpoint=si.IONIZATION_BREAKPOINT)
+    bv_d, *_ = bd.breakdown_voltage(*args, breakpoint=si.IONIZATION_BREAKPOINT, use_table=False)
     ok = np.isfinite(bv_d)
     assert ok.sum() > 0.9 * n and np.array_equal(ok, np.isfinite(bv_t))
-    np.testing.assert_allclose(bv_t[ok], bv_d[ok], rtol=2e-4)
+    err = np.abs(bv_t[ok] / bv_d[ok] - 1)
+    # most junctions: the interpolation's own accuracy
+    assert np.median(err) < 1e-5
+    # near the 4e5 V/cm change of the hole coefficients the interpolation smooths the change: a kink
+    # at 300 K (measured up to 1.3e-4), a jump elsewhere since the temperature factor scales the two
+    # laws differently (measured up to 1.7e-3 at 398 K): the bound is the documented one
+    assert err.max() < (2e-4 if temperature == 300.15 else 2e-3)
 
 
 def test_graded_table_matches_direct_bisection():
