@@ -203,6 +203,10 @@ def concatenate(results, order=None):
         arr = np.concatenate([np.asarray(get(r)) for r in results])
         return arr if order is None else arr[inverse]
 
+    def cat_list(arrays):
+        arr = np.concatenate(arrays)
+        return arr if order is None else arr[inverse]
+
     if order is not None:
         inverse = np.empty(len(order), int)
         inverse[np.asarray(order)] = np.arange(len(order))
@@ -218,14 +222,13 @@ def concatenate(results, order=None):
     for i, f0 in enumerate(first.findings):
         values = {}
         for k, v in f0.values.items():
-            if isinstance(v, np.ndarray) or any(r.findings[i].values[k] != v for r in results):
-                values[k] = cat(lambda r, k=k: np.broadcast_to(np.asarray(r.findings[i].values[k], dtype=object
-                                                                          if not isinstance(r.findings[i].values[k],
-                                                                                            np.ndarray) else None),
-                                                               (len(r),)))
+            here = [r.findings[i].values[k] for r in results]
+            if isinstance(v, np.ndarray) or any(x != v for x in here):
+                values[k] = cat_list([x if isinstance(x, np.ndarray) else np.full(len(r), x, dtype=object)
+                                      for x, r in zip(here, results)])
             else:
                 values[k] = v
-        findings.append(Finding(cat(lambda r: r.findings[i].mask), f0.template, values,
+        findings.append(Finding(cat_list([r.findings[i].mask for r in results]), f0.template, values,
                                 severity=f0.severity, kind=f0.kind))
     device = cat_devices([r.device for r in results])
     if order is not None:
@@ -309,7 +312,17 @@ def derive(device: Device, problems: Problems | None = None) -> Result:
 
 
 def _derive_material(device: Device, mat, problems: Problems) -> Result:
-    """:func:`derive` for devices of one material ``mat``, stage by stage."""
+    """:func:`derive` for devices of one material ``mat``, stage by stage.
+
+    Floating-point overflow and the like raise no numpy warnings here: the guards (stage 3 for the
+    junction potential and depletion widths, stage 9 for the card) turn a non-finite or non-positive
+    result into an error naming the input that caused it.
+    """
+    with np.errstate(all="ignore"):
+        return _stages(device, mat, problems)
+
+
+def _stages(device, mat, problems):
     env = _conditions(device, mat)
     sides = {"p": _side_material(device, device.p, "p", mat, env, problems),
              "n": _side_material(device, device.n, "n", mat, env, problems)}
@@ -340,6 +353,11 @@ def _derive_material(device: Device, mat, problems: Problems) -> Result:
     derived["n"]["depletion_extent"] = el["xn0"]
     _guard(device, params, derived, problems)
     return Result(device=device, params=params, derived=derived, findings=findings, sources=dict(mat.SOURCES))
+
+
+def _rule(problems, mask, key, message, values=None):
+    """``problems.add`` for the rows that have no problem yet (the first reason is the one to report)."""
+    problems.add(mask & ~problems.bad, key, message, values)
 
 
 def _conditions(device, mat):
@@ -400,13 +418,17 @@ def _electrostatics(device, sides, env, problems):
         vgr = junction.gradient_voltage(np.where(linear, grading, 1.0), env["ni"], eps, env["t"])
     vbi = np.where(linear, vgr, vbi_abrupt)
     vj = junction.junction_potential(vbi, linear, env["t"])
-    problems.add(~(vj > 0), "profile", "the junction potential comes out non-positive ({vj:.3g} V): "
-                 "check the doping and grading", {"vj": vj})
-    problems.add(device.reference_bias >= vj, "reference_bias",
-                 "{v:.4g} V is at or beyond the junction potential VJ = {vj:.4g} V",
-                 {"v": device.reference_bias, "vj": vj})
+    _blame(device, ~np.isfinite(vj), "VJ", vj, DEPENDS["VJ"], problems)
+    _rule(problems, ~(vj > 0), "profile", "the junction potential comes out non-positive ({vj:.3g} V): "
+          "check the doping and grading", {"vj": vj})
+    _rule(problems, device.reference_bias >= vj, "reference_bias",
+          "{v:.4g} V is at or beyond the junction potential VJ = {vj:.4g} V",
+          {"v": device.reference_bias, "vj": vj})
     w_ref, xp_ref, xn_ref = junction.depletion_width(vj, device.reference_bias, na, nd, grading, linear, eps)
     w0, xp0, xn0 = junction.depletion_width(vj, 0.0, na, nd, grading, linear, eps)
+    for w in (w_ref, w0):
+        _blame(device, (vj > 0) & (device.reference_bias < vj) & ~((w > 0) & np.isfinite(w)), "the depletion width",
+               w, DEPENDS["depletion"], problems)
     return {"linear": linear, "grading": grading, "vbi": vbi, "vj": vj, "w_ref": w_ref, "w0": w0,
             "x_ref": {"p": xp_ref, "n": xn_ref}, "xp0": xp0, "xn0": xn0}
 
@@ -416,10 +438,10 @@ def _neutral_region(device, side, name, s, el, problems):
     x_ref = el["x_ref"][name]
     thick = np.where(_given(side.thickness), side.thickness, side.neutral_width + x_ref)
     width = np.where(_given(side.thickness), side.thickness - x_ref, side.neutral_width)
-    problems.add(~(width > 0), f"{name}.thickness",
-                 "this side is depleted through to its contact at the reference bias "
-                 "(depletion extent {x:.4g} um, thickness {t:.4g} um): no neutral region is left",
-                 {"x": x_ref * 1e6, "t": thick * 1e6})
+    _rule(problems, ~(width > 0), f"{name}.thickness",
+          "this side is depleted through to its contact at the reference bias "
+          "(depletion extent {x:.4g} um, thickness {t:.4g} um): no neutral region is left",
+          {"x": x_ref * 1e6, "t": thick * 1e6})
     s.update(thickness=thick, neutral_width=width)
     with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
         w_l = width / s["diffusion_length"]
@@ -529,9 +551,119 @@ def _findings(device, mat, sides, env, el, bd):
     return found
 
 
-def _guard(device, params, derived, problems):
-    """Stage 9: every card parameter that must be finite and positive is; else an error naming an input."""
+#: Broad ranges within which each input is plausible (SI), used only to name the input that made a
+#: result non-finite or non-positive; they are not rules on inputs (those are the description's).
+PLAUSIBLE = {
+    "area": (1e-16, 1.0, "m^2"), "perimeter": (1e-9, 10.0, "m"), "junction_depth": (1e-10, 1e-2, "m"),
+    "material.ni": (1.0, 1e30, "m^-3"), "material.bandgap": (0.05, 10.0, "eV"),
+    "material.relative_permittivity": (1.0, 100.0, ""), "grading": (1e18, 1e42, "m^-4"),
+    "recombination_lifetime": (1e-15, 1.0, "s"), "contact_resistance": (0.0, 1e9, "ohm"),
+    "lifetime_temperature_exponent": (-20.0, 20.0, ""), "reference_bias": (-1e4, 10.0, "V"),
+    "doping": (1e16, 1e29, "m^-3"), "resistivity": (1e-8, 1e6, "ohm m"), "thickness": (1e-10, 1.0, "m"),
+    "neutral_width": (1e-10, 1.0, "m"), "lifetime": (1e-15, 1.0, "s"), "diffusion_length": (1e-10, 1.0, "m"),
+    "minority_mobility": (1e-5, 10.0, "m^2/(V s)"), "majority_mobility": (1e-5, 10.0, "m^2/(V s)"),
+    "surface_recombination": (0.0, 1e9, "m/s"),
+}
+#: Values that stand for "not given" besides NaN: no sidewall, an ideal ohmic contact.
+_ABSENT = {"perimeter": 0.0, "junction_depth": 0.0, "surface_recombination": np.inf}
+_SIDE_INPUTS = ("doping", "resistivity", "thickness", "neutral_width", "lifetime", "diffusion_length",
+                "minority_mobility", "majority_mobility", "surface_recombination")
+_DEVICE_INPUTS = {"area": "area", "perimeter": "perimeter", "junction_depth": "junction_depth",
+                  "material.ni": "ni", "material.bandgap": "bandgap",
+                  "material.relative_permittivity": "relative_permittivity", "grading": "grading",
+                  "recombination_lifetime": "recombination_lifetime", "contact_resistance": "contact_resistance",
+                  "lifetime_temperature_exponent": "lifetime_exponent", "reference_bias": "reference_bias"}
+_SIDE_CURRENT = ("doping", "resistivity", "lifetime", "diffusion_length", "minority_mobility", "thickness",
+                 "neutral_width", "surface_recombination")
+#: The inputs each card parameter depends on, in the order they are named when none is implausible.
+#: ``s.`` entries stand for both sides.
+DEPENDS = {
+    "IS": ("area", "perimeter", "junction_depth", "material.ni", "lifetime_temperature_exponent")
+    + tuple("s." + k for k in _SIDE_CURRENT),
+    "TT": ("lifetime_temperature_exponent",) + tuple("s." + k for k in _SIDE_CURRENT),
+    "ISR": ("area", "perimeter", "junction_depth", "material.ni", "recombination_lifetime",
+            "material.relative_permittivity", "lifetime_temperature_exponent", "s.lifetime", "s.diffusion_length",
+            "s.minority_mobility", "s.doping", "s.resistivity"),
+    "IKF": ("area", "perimeter", "junction_depth", "material.ni") + tuple("s." + k for k in _SIDE_CURRENT),
+    "RS": ("area", "contact_resistance", "s.majority_mobility", "s.doping", "s.resistivity", "s.thickness",
+           "s.neutral_width"),
+    "CJO": ("area", "perimeter", "junction_depth", "material.relative_permittivity", "material.ni", "grading",
+            "s.doping", "s.resistivity"),
+    "VJ": ("material.ni", "grading", "material.relative_permittivity", "s.doping", "s.resistivity"),
+    "EG": ("material.bandgap",),
+    "BV": ("material.relative_permittivity", "grading", "s.doping", "s.resistivity", "s.thickness"),
+    "depletion": ("material.relative_permittivity", "reference_bias", "grading", "material.ni", "s.doping",
+                  "s.resistivity"),
+}
+#: Card parameters that must come out finite and within these bounds, SI (RS may be zero; BV may be
+#: absent, warned). The bounds are far beyond any real diode (a 1 m^2 junction; 1e-200 A is far below
+#: the saturation current of any wide-gap junction): a value outside comes from an absurd input.
+RESULT_RANGE = {"IS": (1e-200, 1e3), "RS": (0.0, 1e15), "CJO": (1e-200, 1.0), "VJ": (1e-6, 100.0),
+                "TT": (1e-200, 1e3), "BV": (1e-6, 1e7), "EG": (1e-3, 100.0), "ISR": (1e-200, 1e3),
+                "IKF": (1e-200, 1e12)}
 
+
+def _input_column(device, key):
+    if key.startswith(("p.", "n.")):
+        return getattr(getattr(device, key[0]), key[2:])
+    return getattr(device, _DEVICE_INPUTS[key])
+
+
+def _blame(device, bad, what, value, deps, problems, rule="which must be finite and positive"):
+    """Record, for the rows in ``bad``, an error naming the input of ``deps`` most outside its plausible range.
+
+    Rows that already have a problem (a side depleted through, say) are left alone: their numbers are
+    meaningless and the first reason is the one to report.
+    """
+    if not bad.any():
+        return
+    bad = bad & ~problems.bad
+    if not bad.any():
+        return
+    keys = [k2 for k in deps for k2 in ((f"p.{k[2:]}", f"n.{k[2:]}") if k.startswith("s.") else (k,))]
+    rows = np.flatnonzero(bad)
+    score = np.full((len(rows), len(keys)), -1.0)  # -1: not given; 0: given and plausible
+    for j, k in enumerate(keys):
+        x = np.asarray(_input_column(device, k), float)[rows]
+        base = k.split(".", 1)[1] if k.startswith(("p.", "n.")) else k
+        lo, hi, _ = PLAUSIBLE[base]
+        with np.errstate(all="ignore"):
+            if lo > 0:
+                far = np.maximum(np.maximum(np.log10(lo / np.abs(x)), np.log10(np.abs(x) / hi)), 0.0)
+            else:
+                far = np.maximum(np.log10(np.maximum(np.abs(x), 1e-300) / hi), 0.0)
+        absent = np.isnan(x) | (x == _ABSENT.get(base, np.nan))
+        score[:, j] = np.where(absent, -1.0, np.where(np.isfinite(far), far, 400.0))
+    pick = np.argmax(score, axis=1)  # first of the most implausible; the first given one when all are plausible
+    best = score[np.arange(len(rows)), pick]
+    shown = np.full(len(device), np.nan)
+    shown[rows] = np.asarray(value, float)[rows]
+    for j in np.unique(pick):
+        key = keys[j]
+        x = np.full(len(device), np.nan)
+        x[rows] = np.asarray(_input_column(device, key), float)[rows]
+        for outside in (True, False):
+            mask = np.zeros(len(device), bool)
+            mask[rows[(pick == j) & ((best > 0) == outside)]] = True
+            reason = ("far outside the range where the models hold" if outside else
+                      "check it and the inputs it combines with")
+            unit = PLAUSIBLE[key.split(".", 1)[1] if key.startswith(("p.", "n.")) else key][2]
+            problems.add(mask, key, f"gives {what} = {{v:.4g}}, {rule}: this input "
+                         f"({{x:.4g}}{' ' + unit if unit else ''}) is {reason}", {"v": shown, "x": x})
+
+
+def _guard(device, params, derived, problems):
+    """Stage 9: card parameters that must be finite and positive are; else an error naming the input.
+
+    NaN BV is allowed (no avalanche within the field bracket: warned, left off the card); RS may be zero.
+    """
+    for name, (lo, hi) in RESULT_RANGE.items():
+        v = params[name]
+        ok = (v >= lo if name == "RS" else v > lo) & (v < hi)
+        if name == "BV":
+            ok |= np.isnan(v)
+        _blame(device, ~ok, name, v, DEPENDS[name], problems,
+               f"outside what a diode can have ({lo:g} to {hi:g} {UNITS[name]})")
 
 def _junction_width(result, bias):
     d = result.device

@@ -316,3 +316,60 @@ def test_findings_have_severity_and_kind_and_keep_the_old_text():
     # the older form, a prefix in the text, still reads as a severity
     old = extraction.Finding(np.ones(1, bool), "note: x {a}", {"a": np.array([1])})
     assert (old.severity, old.template, old.text, old.message(0)) == ("note", "x {a}", "note: x {a}", "note: x 1")
+
+
+# ---- absurd but finite inputs: an error naming the input, never a card lacking a parameter -------------
+
+ABSURD = [  # (where, value, the key the error must name); each far outside any real diode
+    ("p.minority_mobility", "1e308 cm^2/(V*s)", "p.minority_mobility"),
+    ("area", "1e-320 m^2", "area"),
+    ("perimeter", "1e300 um", "perimeter"),
+    ("material.relative_permittivity", 1e300, "material.relative_permittivity"),
+    ("material.ni", "1e300 cm^-3", "material.ni"),
+    ("n.diffusion_length", "1e300 m", "n.diffusion_length"),
+    ("contact_resistance", "1e308 ohm", "contact_resistance"),
+]
+
+
+def _absurd(where, value):
+    import copy
+    table = copy.deepcopy(PLAIN)
+    if where == "perimeter":
+        table["junction_depth"] = "1 um"
+    if where == "n.diffusion_length":
+        del table["n"]["lifetime"]
+    if where.startswith("material."):
+        table["material"] = {"name": "silicon"}
+    head, _, tail = where.partition(".")
+    if tail:
+        table[head][tail] = value
+    else:
+        table[head] = value
+    return table
+
+
+@pytest.mark.filterwarnings("error::RuntimeWarning")
+@pytest.mark.parametrize("where, value, key", ABSURD)
+def test_absurd_input_is_an_error_naming_it(where, value, key):
+    from modelgen.errors import InputError
+    device = description.from_mapping(_absurd(where, value), file="absurd.toml")
+    with pytest.raises(InputError) as e:
+        extraction.derive(device)
+    assert e.value.key == key and e.value.file == "absurd.toml"
+
+
+@pytest.mark.filterwarnings("error::RuntimeWarning")
+def test_absurd_rows_of_a_table_are_listed_row_by_row():
+    from modelgen.errors import Problems
+    devices = [description.from_mapping(PLAIN, file="lot.csv")]
+    devices += [description.from_mapping(_absurd(w, v), file="lot.csv") for w, v, _ in ABSURD]
+    devices.append(description.from_mapping(PLAIN, file="lot.csv"))
+    table = device_module.concatenate(devices)
+    table.line = tuple(range(2, 2 + len(devices)))
+    problems = Problems(len(table), sources=table.source, rows=table.line, collect=True)
+    r = extraction.derive(table, problems=problems)
+    assert [(e.row, e.key) for e in problems.errors()] == [(3 + i, k) for i, (_, _, k) in enumerate(ABSURD)]
+    good = ~problems.bad
+    assert good.tolist() == [True] + [False] * len(ABSURD) + [True]
+    for k in ("IS", "RS", "CJO", "TT", "ISR", "IKF"):
+        assert np.all(np.isfinite(r.params[k][good]) & (r.params[k][good] > 0)), k
