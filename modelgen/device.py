@@ -123,3 +123,21 @@ class Device:
             return cls(**kw)
 
         return take(self, Device)
+
+
+def concatenate(devices):
+    """One Device holding the devices of each table in ``devices``, in order."""
+
+    def cat(objs, cls):
+        kw = {}
+        for f in fields(cls):
+            vals = [getattr(o, f.name) for o in objs]
+            if isinstance(vals[0], Side):
+                kw[f.name] = cat(vals, Side)
+            elif isinstance(vals[0], tuple):
+                kw[f.name] = tuple(x for v in vals for x in v)
+            else:
+                kw[f.name] = np.concatenate(vals)
+        return cls(**kw)
+
+    return cat(list(devices), Device)

@@ -9,11 +9,13 @@ quantities an engineer checks, and the warnings. It raises
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 
 from . import materials
+from .constants import EPS0, Q, thermal_voltage
 from .device import Device
 from .errors import InputError, Problems
 from .physics import breakdown, diffusion, junction, recombination, resistance
@@ -34,25 +36,100 @@ SIDE_QUANTITIES = ("doping", "thickness", "neutral_width", "minority_mobility",
                    "transit_time", "resistance")
 
 
-@dataclass
-class Finding:
-    """A warning that applies to the devices where ``mask`` is True.
+#: Severities of findings, mildest first. A note informs (each side's regime); a warning says an
+#: estimate is less sure for this device (a modelled lifetime, reach-through); a caution is a
+#: standing reminder that holds for every card of its kind (breakdown is an estimate).
+SEVERITIES = ("note", "warning", "caution")
+#: The prefix each severity had in the warning texts; :meth:`Finding.message` keeps it.
+_PREFIX = {"note": "note: ", "warning": "", "caution": "caution: "}
 
-    ``text`` is a format string filled, per device, from ``values``
-    (arrays of the same length as the device table).
+#: Short stable ids of the findings and a label each, for counts ("312 rows: lifetime modelled, not given").
+KINDS = {
+    "lifetime_modelled": "lifetime modelled, not given",
+    "degenerate_doping": "doping near degeneracy (Boltzmann statistics strained)",
+    "regime": "side regime by W/L",
+    "graded_plateau": "linear grade above a side's plateau doping",
+    "reach_through": "reach-through before avalanche",
+    "no_breakdown": "no avalanche breakdown in range (BV left off)",
+    "tunnelling": "BV in the tunnelling range",
+    "graded_reach_through": "graded depletion wider than a side at breakdown (BV an upper estimate)",
+    "breakdown_estimate": "breakdown is an estimate",
+}
+
+
+class Finding:
+    """A note, warning or caution that applies to the devices where ``mask`` is True.
+
+    Parameters
+    ----------
+    mask : numpy.ndarray of bool
+        The devices it applies to.
+    text : str
+        Format string filled, per device, from ``values`` (arrays of the
+        device table's length, or plain values shared by all).
+    values : dict, optional
+    severity : {'note', 'warning', 'caution'}, optional
+        When omitted, read from a ``note:`` / ``caution:`` prefix of ``text``
+        (the older form), else 'warning'.
+    kind : str, optional
+        Short stable id (a key of :data:`KINDS`).
+
+    ``text`` gives the format string with the severity's old prefix, and
+    :meth:`message` the filled text with it, as before; :attr:`template` and
+    :meth:`detail` give them without.
     """
 
-    mask: np.ndarray
-    text: str
-    values: dict = field(default_factory=dict)
+    __slots__ = ("mask", "template", "values", "severity", "kind")
+
+    def __init__(self, mask, text, values=None, *, severity=None, kind=""):
+        if severity is None:
+            severity = "warning"
+            for sev in ("note", "caution"):
+                if text.startswith(_PREFIX[sev]):
+                    severity, text = sev, text[len(_PREFIX[sev]):]
+                    break
+        if severity not in _PREFIX:
+            raise ValueError(f"severity must be one of {', '.join(SEVERITIES)}, not {severity!r}")
+        self.mask = mask
+        self.template = text
+        self.values = {} if values is None else values
+        self.severity = severity
+        self.kind = kind
+
+    @property
+    def text(self):
+        """The format string with the severity's prefix (``note: ...``), as the older code reads it."""
+        return _PREFIX[self.severity] + self.template
+
+    def detail(self, i):
+        """The filled text for device ``i``, without a severity prefix."""
+        return self.template.format(**{k: (v[i] if isinstance(v, np.ndarray) else v) for k, v in self.values.items()})
 
     def message(self, i):
-        return self.text.format(**{k: (v[i] if isinstance(v, np.ndarray) else v) for k, v in self.values.items()})
+        """The filled text for device ``i`` with the severity's prefix (the form of :meth:`Result.warnings`)."""
+        return _PREFIX[self.severity] + self.detail(i)
+
+    def take(self, rows):
+        """The same finding for the devices selected by ``rows``."""
+        return Finding(self.mask[rows], self.template,
+                       {k: (v[rows] if isinstance(v, np.ndarray) else v) for k, v in self.values.items()},
+                       severity=self.severity, kind=self.kind)
+
+    def __repr__(self):
+        return f"Finding({self.severity}, {self.kind!r}, {self.template!r}, {int(np.sum(self.mask))} devices)"
+
+
+class Message(NamedTuple):
+    """One finding for one device: its severity, kind and text (without prefix)."""
+
+    severity: str
+    kind: str
+    text: str
 
 
 @dataclass
 class Result:
-    """Parameters, derived quantities and warnings for a table of devices.
+    """Parameters, derived quantities and findings for a table of devices.
 
     ``params[name]`` and ``derived[...]`` are arrays with one entry per
     device; ``derived['p']`` and ``derived['n']`` hold the per-side
@@ -69,8 +146,30 @@ class Result:
         return len(self.device)
 
     def warnings(self, i):
-        """Messages that apply to device ``i``, in a fixed order."""
+        """Messages that apply to device ``i``, in a fixed order, each with its severity prefix."""
         return [f.message(i) for f in self.findings if f.mask[i]]
+
+    def findings_for(self, i):
+        """The findings that apply to device ``i`` as :class:`Message` (severity, kind, text), in a fixed order."""
+        return [Message(f.severity, f.kind, f.detail(i)) for f in self.findings if f.mask[i]]
+
+    def rows_by_kind(self, severities=("warning",)):
+        """``{kind: number of devices with at least one finding of that kind}`` for the given severities.
+
+        Kinds in the order the findings come; kinds that apply to no device are left out.
+        """
+        masks = {}
+        for f in self.findings:
+            if f.severity in severities:
+                masks[f.kind] = masks[f.kind] | f.mask if f.kind in masks else np.asarray(f.mask, bool)
+        return {k: int(m.sum()) for k, m in masks.items() if m.any()}
+
+    def take(self, rows):
+        """The devices selected by ``rows`` (slice, index array or bool mask) as a Result."""
+        def pick(v):
+            return {k: pick(x) for k, x in v.items()} if isinstance(v, dict) else np.asarray(v)[rows]
+        return Result(device=self.device.take(rows), params=pick(self.params), derived=pick(self.derived),
+                      findings=[f.take(rows) for f in self.findings], sources=self.sources)
 
     def row(self, i):
         """Device ``i`` as ``{'name', 'params', 'derived', 'warnings'}`` of plain numbers."""
@@ -91,12 +190,74 @@ class Result:
                 "warnings": self.warnings(i)}
 
 
+def concatenate(results, order=None):
+    """One Result from several with the same findings structure (e.g. chunks of a table).
+
+    ``order``, when given, is the original row of each concatenated row
+    (the result comes back in original order). Findings keep their
+    severity and kind.
+    """
+    from .device import concatenate as cat_devices
+
+    def cat(get):
+        arr = np.concatenate([np.asarray(get(r)) for r in results])
+        return arr if order is None else arr[inverse]
+
+    def cat_list(arrays):
+        arr = np.concatenate(arrays)
+        return arr if order is None else arr[inverse]
+
+    if order is not None:
+        inverse = np.empty(len(order), int)
+        inverse[np.asarray(order)] = np.arange(len(order))
+    first = results[0]
+    params = {k: cat(lambda r, k=k: r.params[k]) for k in first.params}
+    derived = {}
+    for k, v in first.derived.items():
+        if isinstance(v, dict):
+            derived[k] = {kk: cat(lambda r, k=k, kk=kk: r.derived[k][kk]) for kk in v}
+        else:
+            derived[k] = cat(lambda r, k=k: r.derived[k])
+    findings = []
+    for i, f0 in enumerate(first.findings):
+        values = {}
+        for k, v in f0.values.items():
+            here = [r.findings[i].values[k] for r in results]
+            if isinstance(v, np.ndarray) or any(x != v for x in here):
+                values[k] = cat_list([x if isinstance(x, np.ndarray) else np.full(len(r), x, dtype=object)
+                                      for x, r in zip(here, results)])
+            else:
+                values[k] = v
+        findings.append(Finding(cat_list([r.findings[i].mask for r in results]), f0.template, values,
+                                severity=f0.severity, kind=f0.kind))
+    device = cat_devices([r.device for r in results])
+    if order is not None:
+        device = device.take(inverse)
+    sources = {}
+    for r in results:
+        for k, v in r.sources.items():
+            if sources.get(k, v) != v:
+                k = f"{r.device.material[0]} {k}"
+            sources[k] = v
+    return Result(device=device, params=params, derived=derived, findings=findings, sources=sources)
+
+
 def _given(x):
     return ~np.isnan(x)
 
 
+def _cm3(x):
+    """A density [m^-3] as the messages write it in cm^-3, e.g. '1e12'."""
+    return f"{x / 1e6:.0e}".replace("e+", "e")
+
+
 def derive(device: Device, problems: Problems | None = None) -> Result:
     """Evaluate the physics of every device and return the card parameters.
+
+    Devices are grouped by material; each group is evaluated with its
+    material module (:mod:`modelgen.materials`) through the stages below,
+    and the groups are put back in the table's order. A device gives the
+    same numbers alone and in any table.
 
     Parameters
     ----------
@@ -115,99 +276,174 @@ def derive(device: Device, problems: Problems | None = None) -> Result:
     ------
     InputError
         A side depleted through to its contact at the reference bias, a
-        reference bias at or beyond the junction potential, or a resistivity
-        outside the range of the mobility model.
+        reference bias at or beyond the junction potential, a resistivity
+        outside the range of the mobility model, or inputs that make a card
+        parameter non-finite or non-positive (the error names the input).
     """
     unknown = sorted(set(device.material) - set(materials.MATERIALS))
     if unknown:
         raise InputError(f"unknown material {unknown[0]!r}; known: {', '.join(sorted(materials.MATERIALS))}",
                          key="material")
-    mat = materials.get("silicon")  # only material so far
     if problems is None:
         problems = Problems(len(device), sources=device.source, rows=device.line)
+    names = list(dict.fromkeys(device.material)) or ["silicon"]
+    if len(names) == 1:
+        return _derive_material(device, materials.get(names[0]), problems)
+    material = np.asarray(device.material, dtype=object)
+    parts, order = [], []
+    for name in names:
+        rows = np.flatnonzero(material == name)
+        sub = device.take(rows)
+        local = Problems(len(rows), sources=sub.source, rows=sub.line, collect=problems.collect)
+        parts.append(_derive_material(sub, materials.get(name), local))
+        order.append(rows)
+        for mask, key, message, values in local.found:
+            full = np.zeros(len(device), bool)
+            full[rows[mask]] = True
+            vals = None
+            if values:
+                vals = {}
+                for k, v in values.items():
+                    arr = np.empty(len(device), dtype=object)
+                    arr[rows] = list(v) if isinstance(v, np.ndarray) else v
+                    vals[k] = arr
+            problems.add(full, key, message, vals)
+    return concatenate(parts, order=np.concatenate(order))
 
-    findings = []
+
+def _derive_material(device: Device, mat, problems: Problems) -> Result:
+    """:func:`derive` for devices of one material ``mat``, stage by stage.
+
+    Floating-point overflow and the like raise no numpy warnings here: the guards (stage 3 for the
+    junction potential and depletion widths, stage 9 for the card) turn a non-finite or non-positive
+    result into an error naming the input that caused it.
+    """
+    with np.errstate(all="ignore"):
+        return _stages(device, mat, problems)
+
+
+def _stages(device, mat, problems):
+    env = _conditions(device, mat)
+    sides = {"p": _side_material(device, device.p, "p", mat, env, problems),
+             "n": _side_material(device, device.n, "n", mat, env, problems)}
+    el = _electrostatics(device, sides, env, problems)
+    for name in ("p", "n"):
+        _neutral_region(device, getattr(device, name), name, sides[name], el, problems)
+    cur = _currents(device, sides, env, el)
+    cap = _capacitance(env, el)
+    bd = _breakdown(mat, sides, env, el)
+    findings = _findings(device, mat, sides, env, el, bd)
+    ones = np.ones(len(device))
+    p, n = sides["p"], sides["n"]
+    params = {
+        "IS": cur["IS"], "N": ones, "RS": cur["RS"], "CJO": cap["CJO"], "VJ": el["vj"], "M": cap["M"],
+        "FC": device.fc, "TT": cur["TT"], "BV": bd["bv"], "IBV": device.breakdown_current,
+        "EG": env["eg"] - env["t"] * mat.bandgap_slope(env["t"]), "XTI": 3.0 * ones,
+        "ISR": cur["ISR"], "NR": 2.0 * ones, "IKF": cur["IKF"],
+    }
+    derived = {
+        "temperature": env["t"], "ni": env["ni"], "bandgap": env["eg"], "builtin_voltage": el["vbi"],
+        "depletion_width": el["w0"], "depletion_width_reference": el["w_ref"],
+        "reference_bias": device.reference_bias, "junction_area": env["area_total"], "bottom_area": device.area,
+        "recombination_lifetime": cur["tau_rec"], "breakdown_peak_field": bd["e_peak"],
+        "reach_through": bd["reach_p"] | bd["reach_n"],
+        "p": {k: p[k] for k in SIDE_QUANTITIES}, "n": {k: n[k] for k in SIDE_QUANTITIES},
+    }
+    derived["p"]["depletion_extent"] = el["xp0"]
+    derived["n"]["depletion_extent"] = el["xn0"]
+    _guard(device, params, derived, problems)
+    return Result(device=device, params=params, derived=derived, findings=findings, sources=dict(mat.SOURCES))
+
+
+def _rule(problems, mask, key, message, values=None):
+    """``problems.add`` for the rows that have no problem yet (the first reason is the one to report)."""
+    problems.add(mask & ~problems.bad, key, message, values)
+
+
+def _conditions(device, mat):
+    """Stage 1: temperature, permittivity, ni and band gap at the evaluation temperature, junction area."""
     t = device.temperature
     t_ref = device.reference_temperature  # where the user's values (ni, bandgap, lifetime, resistivity) hold
-    vt = mat.thermal_voltage(t)
-    eps = device.relative_permittivity * mat.EPS0
     # a given ni or band gap holds at the reference temperature; the model carries it to t
     ni = np.where(_given(device.ni), device.ni * mat.intrinsic_density(t) / mat.intrinsic_density(t_ref),
                   mat.intrinsic_density(t))
     eg = np.where(_given(device.bandgap), device.bandgap + mat.bandgap(t) - mat.bandgap(t_ref), mat.bandgap(t))
-    tau_scale = (t / t_ref) ** device.lifetime_exponent
-    area_total = device.area + device.perimeter * device.junction_depth
+    return {"t": t, "t_ref": t_ref, "vt": thermal_voltage(t), "eps": device.relative_permittivity * EPS0,
+            "ni": ni, "eg": eg, "tau_scale": (t / t_ref) ** device.lifetime_exponent,
+            "area_total": device.area + device.perimeter * device.junction_depth}
 
-    sides = {}
-    for name, side, majority, minority in (("p", device.p, "hole", "electron"),
-                                           ("n", device.n, "electron", "hole")):
-        # doping, from resistivity where that was given
-        mu_override = side.majority_mobility
-        from_rho = np.isnan(side.doping)
-        n_rho = np.full(len(device), np.nan)
-        modelled = np.flatnonzero(from_rho & ~_given(mu_override))  # invert the mobility model only there
-        if len(modelled):
-            n_rho[modelled] = mat.doping_from_resistivity(side.resistivity[modelled], majority, t_ref[modelled])
-        with np.errstate(invalid="ignore", divide="ignore"):
-            n_rho = np.where(_given(mu_override), 1.0 / (mat.Q * side.resistivity * mu_override), n_rho)
-        doping = np.where(from_rho, n_rho, side.doping)
-        problems.add(from_rho & ~np.isfinite(doping), f"{name}.resistivity",
-              "outside the range of the mobility model (doping 1e12-1e22 cm^-3)")
-        mu_maj = np.where(_given(mu_override), mu_override, mat.majority_mobility(doping, majority, t))
-        mu_min = np.where(_given(side.minority_mobility), side.minority_mobility,
-                          mat.minority_mobility(doping, minority, t))
+
+def _side_material(device, side, name, mat, env, problems):
+    """Stage 2, one side: doping (from resistivity where given), mobilities, lifetime, diffusion length, BGN."""
+    majority, minority = ("hole", "electron") if name == "p" else ("electron", "hole")
+    t, t_ref, vt = env["t"], env["t_ref"], env["vt"]
+    mu_override = side.majority_mobility
+    from_rho = np.isnan(side.doping)
+    n_rho = np.full(len(device), np.nan)
+    modelled = np.flatnonzero(from_rho & ~_given(mu_override))  # invert the mobility model only there
+    if len(modelled):
+        n_rho[modelled] = mat.doping_from_resistivity(side.resistivity[modelled], majority, t_ref[modelled])
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        n_rho = np.where(_given(mu_override), 1.0 / (Q * side.resistivity * mu_override), n_rho)
+    doping = np.where(from_rho, n_rho, side.doping)
+    lo, hi = mat.DOPING_RANGE
+    problems.add(from_rho & ~np.isfinite(doping), f"{name}.resistivity",
+                 f"outside the range of the mobility model (doping {_cm3(lo)}-{_cm3(hi)} cm^-3)")
+    mu_maj = np.where(_given(mu_override), mu_override, mat.majority_mobility(doping, majority, t))
+    mu_min = np.where(_given(side.minority_mobility), side.minority_mobility,
+                      mat.minority_mobility(doping, minority, t))
+    with np.errstate(over="ignore", invalid="ignore"):
         diff = mu_min * vt
-        modelled = np.isnan(side.lifetime) & np.isnan(side.diffusion_length)
         # a diffusion length is given at the reference temperature: tau = L^2 / D there
         d_ref = vt * np.where(_given(side.minority_mobility), side.minority_mobility,
                               mat.minority_mobility(doping, minority, t_ref)) * (t_ref / t)
-        tau = tau_scale * np.where(_given(side.lifetime), side.lifetime,
-                                   np.where(_given(side.diffusion_length), side.diffusion_length**2 / d_ref,
-                                            mat.minority_lifetime(doping, name)))
-        findings.append(Finding(modelled, f"{name} side: no lifetime given; using the doping-dependent "
-                                "SRH + Auger model, tau = {tau:.3g} s. Lifetime is process dependent: "
-                                "give a measured value where you have one", {"tau": tau}))
+        tau = env["tau_scale"] * np.where(_given(side.lifetime), side.lifetime,
+                                          np.where(_given(side.diffusion_length), side.diffusion_length**2 / d_ref,
+                                                   mat.minority_lifetime(doping, name)))
         dbgn = mat.bandgap_narrowing(doping)
-        sides[name] = dict(doping=doping, majority_mobility=mu_maj, minority_mobility=mu_min,
-                           diffusivity=diff, lifetime=tau, diffusion_length=np.sqrt(diff * tau),
-                           bandgap_narrowing=dbgn, ni_eff=ni * np.exp(dbgn / (2 * vt)),
-                           contact_velocity=side.surface_recombination)
-    na, nd = sides["p"]["doping"], sides["n"]["doping"]
+        return dict(doping=doping, majority_mobility=mu_maj, minority_mobility=mu_min,
+                    diffusivity=diff, lifetime=tau, diffusion_length=np.sqrt(diff * tau),
+                    bandgap_narrowing=dbgn, ni_eff=env["ni"] * np.exp(dbgn / (2 * vt)),
+                    contact_velocity=side.surface_recombination,
+                    lifetime_modelled=np.isnan(side.lifetime) & np.isnan(side.diffusion_length))
 
-    # degenerate doping: Boltzmann Fermi level within 3 kT of the band edge
-    # (Pierret 1996, sec. 2.5: the non-degenerate range)
-    nc, nv = mat.effective_density_of_states(t)
-    for name, dos, band in (("p", nv, "valence"), ("n", nc, "conduction")):
-        n_side = sides[name]["doping"]
-        findings.append(Finding(n_side > dos * np.exp(-3.0),
-                                f"{name} side: doping {{N:.3g}} cm^-3 puts the Fermi level within 3 kT of the "
-                                f"{band} band: Boltzmann statistics fail there. The band-gap narrowing model "
-                                "is an apparent one fitted to such material, but Vbi and the mobility are less sure",
-                                {"N": n_side / 1e6}))
 
-    # electrostatics
+def _electrostatics(device, sides, env, problems):
+    """Stage 3: built-in and junction potential, depletion widths at zero and at the reference bias."""
+    na, nd, eps = sides["p"]["doping"], sides["n"]["doping"], env["eps"]
     linear = device.linear
     grading = np.where(linear, device.grading, np.nan)
-    vbi_abrupt = junction.builtin_voltage(na, nd, ni, t)
+    vbi_abrupt = junction.builtin_voltage(na, nd, env["ni"], env["t"])
     with np.errstate(invalid="ignore"):
-        vgr = junction.gradient_voltage(np.where(linear, grading, 1.0), ni, eps, t)
+        vgr = junction.gradient_voltage(np.where(linear, grading, 1.0), env["ni"], eps, env["t"])
     vbi = np.where(linear, vgr, vbi_abrupt)
-    vj = junction.junction_potential(vbi, linear, t)
-    problems.add(~(vj > 0), "profile", "the junction potential comes out non-positive ({vj:.3g} V): "
+    vj = junction.junction_potential(vbi, linear, env["t"])
+    _blame(device, ~np.isfinite(vj), "VJ", vj, DEPENDS["VJ"], problems)
+    _rule(problems, ~(vj > 0), "profile", "the junction potential comes out non-positive ({vj:.3g} V): "
           "check the doping and grading", {"vj": vj})
-    problems.add(device.reference_bias >= vj, "reference_bias",
-          "{v:.4g} V is at or beyond the junction potential VJ = {vj:.4g} V", {"v": device.reference_bias, "vj": vj})
+    _rule(problems, device.reference_bias >= vj, "reference_bias",
+          "{v:.4g} V is at or beyond the junction potential VJ = {vj:.4g} V",
+          {"v": device.reference_bias, "vj": vj})
     w_ref, xp_ref, xn_ref = junction.depletion_width(vj, device.reference_bias, na, nd, grading, linear, eps)
     w0, xp0, xn0 = junction.depletion_width(vj, 0.0, na, nd, grading, linear, eps)
-    for name, side, x_ref in (("p", device.p, xp_ref), ("n", device.n, xn_ref)):
-        thick = np.where(_given(side.thickness), side.thickness, side.neutral_width + x_ref)
-        width = np.where(_given(side.thickness), side.thickness - x_ref, side.neutral_width)
-        problems.add(~(width > 0), f"{name}.thickness",
-              "this side is depleted through to its contact at the reference bias "
-              "(depletion extent {x:.4g} um, thickness {t:.4g} um): no neutral region is left",
-              {"x": x_ref * 1e6, "t": thick * 1e6})
-        s = sides[name]
-        s.update(thickness=thick, neutral_width=width)
+    for w in (w_ref, w0):
+        _blame(device, (vj > 0) & (device.reference_bias < vj) & ~((w > 0) & np.isfinite(w)), "the depletion width",
+               w, DEPENDS["depletion"], problems)
+    return {"linear": linear, "grading": grading, "vbi": vbi, "vj": vj, "w_ref": w_ref, "w0": w0,
+            "x_ref": {"p": xp_ref, "n": xn_ref}, "xp0": xp0, "xn0": xn0}
+
+
+def _neutral_region(device, side, name, s, el, problems):
+    """Stage 4, one side: neutral width, W/L, finite-width factor, J0, transit time, resistance (into ``s``)."""
+    x_ref = el["x_ref"][name]
+    thick = np.where(_given(side.thickness), side.thickness, side.neutral_width + x_ref)
+    width = np.where(_given(side.thickness), side.thickness - x_ref, side.neutral_width)
+    _rule(problems, ~(width > 0), f"{name}.thickness",
+          "this side is depleted through to its contact at the reference bias "
+          "(depletion extent {x:.4g} um, thickness {t:.4g} um): no neutral region is left",
+          {"x": x_ref * 1e6, "t": thick * 1e6})
+    s.update(thickness=thick, neutral_width=width)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
         w_l = width / s["diffusion_length"]
         s_norm = s["contact_velocity"] * s["diffusion_length"] / s["diffusivity"]
         s["w_over_l"] = w_l
@@ -216,74 +452,222 @@ def derive(device: Device, problems: Problems | None = None) -> Result:
         s["saturation_current_density"] = diffusion.saturation_current_density(
             s["ni_eff"], s["doping"], s["diffusivity"], s["diffusion_length"], width, s["contact_velocity"])
         s["transit_time"] = diffusion.transit_time(s["lifetime"], w_l, s_norm)
-        s["resistance"] = resistance.neutral_region_resistance(width, s["doping"], s["majority_mobility"], device.area)
-        findings.append(Finding(np.ones(len(device), bool),
-                                f"note: {name} side is {{regime}} (W/L = {{wl:.3g}}); the exact finite-width "
-                                "factor is used", {"regime": s["regime"], "wl": w_l}))
+        s["resistance"] = resistance.neutral_region_resistance(width, s["doping"], s["majority_mobility"],
+                                                               device.area)
 
-    lighter = np.where(na <= nd, "p", "n")
-    findings.append(Finding(linear & (0.5 * grading * w0 > np.minimum(na, nd)),
-                            "the linear grade at the zero-bias depletion edge exceeds a side's plateau "
-                            "doping: the graded-junction capacitance is only approximate", {}))
 
-    # currents
+def _currents(device, sides, env, el):
+    """Stage 5: IS and TT from both sides, the recombination current ISR, the knee IKF, and RS."""
     p, n = sides["p"], sides["n"]
-    j0 = p["saturation_current_density"] + n["saturation_current_density"]
-    is_ = area_total * j0
-    tt = (p["saturation_current_density"] * p["transit_time"]
-          + n["saturation_current_density"] * n["transit_time"]) / j0
-    tau_light = np.where(lighter == "p", p["lifetime"], n["lifetime"])
-    tau_rec = np.where(_given(device.recombination_lifetime), device.recombination_lifetime * tau_scale, tau_light)
-    isr = area_total * recombination.recombination_saturation_density(ni, w0, tau_rec)
-    n_light = np.minimum(na, nd)
-    ni_eff_light = np.where(lighter == "p", p["ni_eff"], n["ni_eff"])
-    ikf = is_ * (n_light / ni_eff_light) ** 2
-    cjo = area_total * junction.depletion_capacitance(w0, eps)
-    rs = p["resistance"] + n["resistance"] + device.contact_resistance
+    area_total = env["area_total"]
+    lighter_p = p["doping"] <= n["doping"]
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
+        j0 = p["saturation_current_density"] + n["saturation_current_density"]
+        is_ = area_total * j0
+        tt = (p["saturation_current_density"] * p["transit_time"]
+              + n["saturation_current_density"] * n["transit_time"]) / j0
+        tau_light = np.where(lighter_p, p["lifetime"], n["lifetime"])
+        tau_rec = np.where(_given(device.recombination_lifetime), device.recombination_lifetime * env["tau_scale"],
+                           tau_light)
+        isr = area_total * recombination.recombination_saturation_density(env["ni"], el["w0"], tau_rec)
+        n_light = np.minimum(p["doping"], n["doping"])
+        ni_eff_light = np.where(lighter_p, p["ni_eff"], n["ni_eff"])
+        ikf = is_ * (n_light / ni_eff_light) ** 2
+        rs = p["resistance"] + n["resistance"] + device.contact_resistance
+    return {"IS": is_, "TT": tt, "ISR": isr, "IKF": ikf, "RS": rs, "tau_rec": tau_rec}
 
-    # breakdown
+
+def _capacitance(env, el):
+    """Stage 6: zero-bias depletion capacitance CJO and grading coefficient M (VJ comes from stage 3)."""
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
+        cjo = env["area_total"] * junction.depletion_capacitance(el["w0"], env["eps"])
+    return {"CJO": cjo, "M": junction.grading_coefficient(el["linear"])}
+
+
+def _breakdown(mat, sides, env, el):
+    """Stage 7: avalanche breakdown voltage with reach-through (:mod:`modelgen.physics.breakdown`)."""
+    linear, grading = el["linear"], el["grading"]
+    p, n = sides["p"], sides["n"]
     bv, e_peak, reach_p, reach_n = breakdown.breakdown_voltage(
-        vbi, na, nd, p["thickness"], n["thickness"], np.where(linear, grading, 0.0), linear, eps, t,
-        mat.ionization_coefficients, breakpoint=mat.IONIZATION_BREAKPOINT)
-    findings.append(Finding(reach_p | reach_n,
-                            "reach-through: the depletion region reaches the {side} contact before avalanche; "
-                            "BV = {bv:.4g} V is lower than a thick junction's",
-                            {"side": np.where(reach_p & reach_n, "p and n", np.where(reach_p, "p", "n")), "bv": bv}))
-    findings.append(Finding(np.isnan(bv), "no avalanche breakdown below a peak field of 2e6 V/cm; BV is left "
-                            "off the card", {}))
+        el["vbi"], p["doping"], n["doping"], p["thickness"], n["thickness"], np.where(linear, grading, 0.0), linear,
+        env["eps"], env["t"], mat.ionization_coefficients, breakpoint=mat.IONIZATION_BREAKPOINT)
+    return {"bv": bv, "e_peak": e_peak, "reach_p": reach_p, "reach_n": reach_n}
+
+
+def _findings(device, mat, sides, env, el, bd):
+    """Stage 8: the notes, warnings and cautions, in a fixed order."""
+    found = []
+    for name in ("p", "n"):
+        s = sides[name]
+        found.append(Finding(s["lifetime_modelled"], f"{name} side: no lifetime given; using {{model}}, "
+                             "tau = {tau:.3g} s. Lifetime is process dependent: give a measured value where you "
+                             "have one", {"tau": s["lifetime"], "model": mat.LIFETIME_MODEL},
+                             severity="warning", kind="lifetime_modelled"))
+    # degenerate doping: Boltzmann Fermi level within 3 kT of the band edge
+    # (Pierret 1996, sec. 2.5: the non-degenerate range)
+    nc, nv = mat.effective_density_of_states(env["t"])
+    for name, dos, band in (("p", nv, "valence"), ("n", nc, "conduction")):
+        n_side = sides[name]["doping"]
+        found.append(Finding(n_side > dos * np.exp(-3.0),
+                             f"{name} side: doping {{N:.3g}} cm^-3 puts the Fermi level within 3 kT of the "
+                             f"{band} band: Boltzmann statistics fail there. The band-gap narrowing model "
+                             "is an apparent one fitted to such material, but Vbi and the mobility are less sure",
+                             {"N": n_side / 1e6}, severity="warning", kind="degenerate_doping"))
+    for name in ("p", "n"):
+        s = sides[name]
+        found.append(Finding(np.ones(len(device), bool),
+                             f"{name} side is {{regime}} (W/L = {{wl:.3g}}); the exact finite-width "
+                             "factor is used", {"regime": s["regime"], "wl": s["w_over_l"]},
+                             severity="note", kind="regime"))
+    linear, grading = el["linear"], el["grading"]
+    na, nd = sides["p"]["doping"], sides["n"]["doping"]
+    found.append(Finding(linear & (0.5 * grading * el["w0"] > np.minimum(na, nd)),
+                         "the linear grade at the zero-bias depletion edge exceeds a side's plateau "
+                         "doping: the graded-junction capacitance is only approximate", {},
+                         severity="warning", kind="graded_plateau"))
+    bv, reach_p, reach_n = bd["bv"], bd["reach_p"], bd["reach_n"]
+    found.append(Finding(reach_p | reach_n,
+                         "reach-through: the depletion region reaches the {side} contact before avalanche; "
+                         "BV = {bv:.4g} V is lower than a thick junction's",
+                         {"side": np.where(reach_p & reach_n, "p and n", np.where(reach_p, "p", "n")), "bv": bv},
+                         severity="warning", kind="reach_through"))
+    found.append(Finding(np.isnan(bv), "no avalanche breakdown below a peak field of 2e6 V/cm; BV is left "
+                         "off the card", {}, severity="warning", kind="no_breakdown"))
     with np.errstate(invalid="ignore"):
-        tunnel = bv < 4.0 * eg
-        findings.append(Finding(tunnel, "BV = {bv:.3g} V is below 4 Eg/q: tunnelling (Zener) breakdown dominates "
-                                "there and the avalanche estimate does not apply", {"bv": bv}))
-    findings.append(Finding(linear & (0.5 * np.sqrt(2 * eps * e_peak / (mat.Q * np.where(linear, grading, 1.0)))
-                                      > np.minimum(p["thickness"], n["thickness"])),
-                            "the graded junction's depletion region at breakdown is wider than a side: "
-                            "reach-through is not modelled for graded junctions, so BV is an upper estimate", {}))
-    findings.append(Finding(np.ones(len(device), bool),
-                            "caution: breakdown is a physics estimate; derate it and confirm on measured devices", {}))
+        tunnel = bv < 4.0 * env["eg"]
+    found.append(Finding(tunnel, "BV = {bv:.3g} V is below 4 Eg/q: tunnelling (Zener) breakdown dominates "
+                         "there and the avalanche estimate does not apply", {"bv": bv},
+                         severity="warning", kind="tunnelling"))
+    p, n = sides["p"], sides["n"]
+    with np.errstate(over="ignore", invalid="ignore"):
+        graded_width = 0.5 * np.sqrt(2 * env["eps"] * bd["e_peak"] / (Q * np.where(linear, grading, 1.0)))
+    found.append(Finding(linear & (graded_width > np.minimum(p["thickness"], n["thickness"])),
+                         "the graded junction's depletion region at breakdown is wider than a side: "
+                         "reach-through is not modelled for graded junctions, so BV is an upper estimate", {},
+                         severity="warning", kind="graded_reach_through"))
+    found.append(Finding(np.ones(len(device), bool),
+                         "breakdown is a physics estimate; derate it and confirm on measured devices", {},
+                         severity="caution", kind="breakdown_estimate"))
+    return found
 
-    ones = np.ones(len(device))
-    params = {
-        "IS": is_, "N": ones, "RS": rs, "CJO": cjo, "VJ": vj, "M": junction.grading_coefficient(linear),
-        "FC": device.fc, "TT": tt, "BV": bv, "IBV": device.breakdown_current,
-        "EG": eg - t * mat.bandgap_slope(t), "XTI": 3.0 * ones,
-        "ISR": isr, "NR": 2.0 * ones, "IKF": ikf,
-    }
-    derived = {
-        "temperature": t, "ni": ni, "bandgap": eg, "builtin_voltage": vbi,
-        "depletion_width": w0, "depletion_width_reference": w_ref, "reference_bias": device.reference_bias,
-        "junction_area": area_total, "bottom_area": device.area, "recombination_lifetime": tau_rec,
-        "breakdown_peak_field": e_peak, "reach_through": reach_p | reach_n,
-        "p": {k: p[k] for k in SIDE_QUANTITIES}, "n": {k: n[k] for k in SIDE_QUANTITIES},
-    }
-    derived["p"]["depletion_extent"] = xp0
-    derived["n"]["depletion_extent"] = xn0
-    return Result(device=device, params=params, derived=derived, findings=findings, sources=dict(mat.SOURCES))
 
+#: Broad ranges within which each input is plausible (SI), used only to name the input that made a
+#: result non-finite or non-positive; they are not rules on inputs (those are the description's).
+PLAUSIBLE = {
+    "area": (1e-16, 1.0, "m^2"), "perimeter": (1e-9, 10.0, "m"), "junction_depth": (1e-10, 1e-2, "m"),
+    "material.ni": (1.0, 1e30, "m^-3"), "material.bandgap": (0.05, 10.0, "eV"),
+    "material.relative_permittivity": (1.0, 100.0, ""), "grading": (1e18, 1e42, "m^-4"),
+    "recombination_lifetime": (1e-15, 1.0, "s"), "contact_resistance": (0.0, 1e9, "ohm"),
+    "lifetime_temperature_exponent": (-20.0, 20.0, ""), "reference_bias": (-1e4, 10.0, "V"),
+    "doping": (1e16, 1e29, "m^-3"), "resistivity": (1e-8, 1e6, "ohm m"), "thickness": (1e-10, 1.0, "m"),
+    "neutral_width": (1e-10, 1.0, "m"), "lifetime": (1e-15, 1.0, "s"), "diffusion_length": (1e-10, 1.0, "m"),
+    "minority_mobility": (1e-5, 10.0, "m^2/(V s)"), "majority_mobility": (1e-5, 10.0, "m^2/(V s)"),
+    "surface_recombination": (0.0, 1e9, "m/s"),
+}
+#: Values that stand for "not given" besides NaN: no sidewall, an ideal ohmic contact.
+_ABSENT = {"perimeter": 0.0, "junction_depth": 0.0, "surface_recombination": np.inf}
+_SIDE_INPUTS = ("doping", "resistivity", "thickness", "neutral_width", "lifetime", "diffusion_length",
+                "minority_mobility", "majority_mobility", "surface_recombination")
+_DEVICE_INPUTS = {"area": "area", "perimeter": "perimeter", "junction_depth": "junction_depth",
+                  "material.ni": "ni", "material.bandgap": "bandgap",
+                  "material.relative_permittivity": "relative_permittivity", "grading": "grading",
+                  "recombination_lifetime": "recombination_lifetime", "contact_resistance": "contact_resistance",
+                  "lifetime_temperature_exponent": "lifetime_exponent", "reference_bias": "reference_bias"}
+_SIDE_CURRENT = ("doping", "resistivity", "lifetime", "diffusion_length", "minority_mobility", "thickness",
+                 "neutral_width", "surface_recombination")
+#: The inputs each card parameter depends on, in the order they are named when none is implausible.
+#: ``s.`` entries stand for both sides.
+DEPENDS = {
+    "IS": ("area", "perimeter", "junction_depth", "material.ni", "lifetime_temperature_exponent")
+    + tuple("s." + k for k in _SIDE_CURRENT),
+    "TT": ("lifetime_temperature_exponent",) + tuple("s." + k for k in _SIDE_CURRENT),
+    "ISR": ("area", "perimeter", "junction_depth", "material.ni", "recombination_lifetime",
+            "material.relative_permittivity", "lifetime_temperature_exponent", "s.lifetime", "s.diffusion_length",
+            "s.minority_mobility", "s.doping", "s.resistivity"),
+    "IKF": ("area", "perimeter", "junction_depth", "material.ni") + tuple("s." + k for k in _SIDE_CURRENT),
+    "RS": ("area", "contact_resistance", "s.majority_mobility", "s.doping", "s.resistivity", "s.thickness",
+           "s.neutral_width"),
+    "CJO": ("area", "perimeter", "junction_depth", "material.relative_permittivity", "material.ni", "grading",
+            "s.doping", "s.resistivity"),
+    "VJ": ("material.ni", "grading", "material.relative_permittivity", "s.doping", "s.resistivity"),
+    "EG": ("material.bandgap",),
+    "BV": ("material.relative_permittivity", "grading", "s.doping", "s.resistivity", "s.thickness"),
+    "depletion": ("material.relative_permittivity", "reference_bias", "grading", "material.ni", "s.doping",
+                  "s.resistivity"),
+}
+#: Card parameters that must come out finite and within these bounds, SI (RS may be zero; BV may be
+#: absent, warned). The bounds are far beyond any real diode (a 1 m^2 junction; 1e-200 A is far below
+#: the saturation current of any wide-gap junction): a value outside comes from an absurd input.
+RESULT_RANGE = {"IS": (1e-200, 1e3), "RS": (0.0, 1e15), "CJO": (1e-200, 1.0), "VJ": (1e-6, 100.0),
+                "TT": (1e-200, 1e3), "BV": (1e-6, 1e7), "EG": (1e-3, 100.0), "ISR": (1e-200, 1e3),
+                "IKF": (1e-200, 1e12)}
+
+
+def _input_column(device, key):
+    if key.startswith(("p.", "n.")):
+        return getattr(getattr(device, key[0]), key[2:])
+    return getattr(device, _DEVICE_INPUTS[key])
+
+
+def _blame(device, bad, what, value, deps, problems, rule="which must be finite and positive"):
+    """Record, for the rows in ``bad``, an error naming the input of ``deps`` most outside its plausible range.
+
+    Rows that already have a problem (a side depleted through, say) are left alone: their numbers are
+    meaningless and the first reason is the one to report.
+    """
+    if not bad.any():
+        return
+    bad = bad & ~problems.bad
+    if not bad.any():
+        return
+    keys = [k2 for k in deps for k2 in ((f"p.{k[2:]}", f"n.{k[2:]}") if k.startswith("s.") else (k,))]
+    rows = np.flatnonzero(bad)
+    score = np.full((len(rows), len(keys)), -1.0)  # -1: not given; 0: given and plausible
+    for j, k in enumerate(keys):
+        x = np.asarray(_input_column(device, k), float)[rows]
+        base = k.split(".", 1)[1] if k.startswith(("p.", "n.")) else k
+        lo, hi, _ = PLAUSIBLE[base]
+        with np.errstate(all="ignore"):
+            if lo > 0:
+                far = np.maximum(np.maximum(np.log10(lo / np.abs(x)), np.log10(np.abs(x) / hi)), 0.0)
+            else:
+                far = np.maximum(np.log10(np.maximum(np.abs(x), 1e-300) / hi), 0.0)
+        absent = np.isnan(x) | (x == _ABSENT.get(base, np.nan))
+        score[:, j] = np.where(absent, -1.0, np.where(np.isfinite(far), far, 400.0))
+    pick = np.argmax(score, axis=1)  # first of the most implausible; the first given one when all are plausible
+    best = score[np.arange(len(rows)), pick]
+    shown = np.full(len(device), np.nan)
+    shown[rows] = np.asarray(value, float)[rows]
+    for j in np.unique(pick):
+        key = keys[j]
+        x = np.full(len(device), np.nan)
+        x[rows] = np.asarray(_input_column(device, key), float)[rows]
+        for outside in (True, False):
+            mask = np.zeros(len(device), bool)
+            mask[rows[(pick == j) & ((best > 0) == outside)]] = True
+            reason = ("far outside the range where the models hold" if outside else
+                      "check it and the inputs it combines with")
+            unit = PLAUSIBLE[key.split(".", 1)[1] if key.startswith(("p.", "n.")) else key][2]
+            problems.add(mask, key, f"gives {what} = {{v:.4g}}, {rule}: this input "
+                         f"({{x:.4g}}{' ' + unit if unit else ''}) is {reason}", {"v": shown, "x": x})
+
+
+def _guard(device, params, derived, problems):
+    """Stage 9: card parameters that must be finite and positive are; else an error naming the input.
+
+    NaN BV is allowed (no avalanche within the field bracket: warned, left off the card); RS may be zero.
+    """
+    for name, (lo, hi) in RESULT_RANGE.items():
+        v = params[name]
+        ok = (v >= lo if name == "RS" else v > lo) & (v < hi)
+        if name == "BV":
+            ok |= np.isnan(v)
+        _blame(device, ~ok, name, v, DEPENDS[name], problems,
+               f"outside what a diode can have ({lo:g} to {hi:g} {UNITS[name]})")
 
 def _junction_width(result, bias):
     d = result.device
-    eps = d.relative_permittivity * materials.get("silicon").EPS0
+    eps = d.relative_permittivity * EPS0
     col = lambda a: np.asarray(a)[:, None]  # noqa: E731  (devices down, biases across)
     w, _, _ = junction.depletion_width(col(result.params["VJ"]), bias, col(result.derived["p"]["doping"]),
                                        col(result.derived["n"]["doping"]), col(d.grading), col(d.linear),
@@ -308,7 +692,7 @@ def predicted_current(result, vd):
     """
     vd = np.asarray(vd, float)[None, :]
     t = result.derived["temperature"][:, None]
-    vt = materials.get("silicon").thermal_voltage(t)
+    vt = thermal_voltage(t)
     w, _ = _junction_width(result, vd)
     j_rec = recombination.recombination_saturation_density(
         result.derived["ni"][:, None], w, result.derived["recombination_lifetime"][:, None])

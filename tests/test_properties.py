@@ -34,3 +34,26 @@ def test_valid_input_gives_finite_positive_parameters(p, n, area, bias):
         assert math.isfinite(v) and v > 0, (k, v, table)
     # a current-weighted mean of per-side transit times, each at most its lifetime
     assert r["params"]["TT"] <= max(r["derived"]["p"]["lifetime"], r["derived"]["n"]["lifetime"]) * (1 + 1e-12)
+
+
+# Defect 6: a device gave a different BV alone than in a lot with more than eight distinct temperatures
+# (the breakdown solver switched method on the count of temperatures in the call).
+_BATCH_DEVICE = {"name": "DTEMP", "area": "1e-3 cm^2",  # invented test device, thick abrupt junction
+                 "p": {"doping": "1e18 cm^-3", "thickness": "2 um", "lifetime": "100 ns"},
+                 "n": {"doping": "1e16 cm^-3", "thickness": "50 um", "lifetime": "1 us"}}
+
+
+@settings(max_examples=15, deadline=None)
+@given(temps=st.lists(st.floats(233.15, 423.15), min_size=2, max_size=14, unique=True),
+       n_doping=st.floats(15.0, 17.5))
+def test_batch_equals_single_for_any_mix_of_temperatures(temps, n_doping):
+    import numpy as np
+
+    from modelgen.device import concatenate
+    table = {**_BATCH_DEVICE, "n": {**_BATCH_DEVICE["n"], "doping": f"{10 ** n_doping:.6g} cm^-3"}}
+    alone = [description.from_mapping({**table, "temperature": f"{t!r} K"}) for t in temps]
+    lot = extraction.derive(concatenate(alone))
+    for i, device in enumerate(alone):
+        single = extraction.derive(device)
+        for k in extraction.PARAMETERS:
+            assert np.array_equal(lot.params[k][i], single.params[k][0], equal_nan=True), (k, temps[i])

@@ -6,17 +6,15 @@ converted at the edge of its own function, and the docstring says so.
 Energies are returned in eV (numerically equal to volts), as the trade
 quotes them.
 
-Constants come from CODATA 2018 through :mod:`scipy.constants`.
+Constants come from :mod:`modelgen.constants` (CODATA 2018 through
+:mod:`scipy.constants`).
 """
 
 from __future__ import annotations
 
 import numpy as np
-from scipy import constants as _c
 
-Q = _c.e  #: elementary charge [C]
-K_B = _c.k  #: Boltzmann constant [J/K]
-EPS0 = _c.epsilon_0  #: vacuum permittivity [F/m]
+from ..constants import EPS0, K_B, Q, thermal_voltage  # noqa: F401  (re-exported: silicon.Q etc. stay importable)
 
 NAME = "silicon"
 
@@ -26,6 +24,15 @@ NAME = "silicon"
 RELATIVE_PERMITTIVITY = 11.9
 
 _CM3 = 1e6  # cm^-3 -> m^-3
+
+#: Doping the mobility and lifetime models are used over [m^-3] (1e12-1e22 cm^-3): the bracket of
+#: :func:`doping_from_resistivity`; Masetti et al. (1983) fitted 1e13-1e21 cm^-3.
+DOPING_RANGE = (1e12 * _CM3, 1e22 * _CM3)
+#: Temperatures the models are used over [K]; Thurmond's band gap fits 0-1000 K, the ni fit
+#: 78-340 K (extrapolated above, see :func:`intrinsic_density`).
+TEMPERATURE_RANGE = (50.0, 700.0)
+#: The lifetime model used when none is given, as the warning names it.
+LIFETIME_MODEL = "the doping-dependent SRH + Auger model"
 _CM2 = 1e-4  # cm^2/(V s) -> m^2/(V s)
 
 SOURCES = {
@@ -43,21 +50,6 @@ SOURCES = {
     "permittivity": "Sze & Ng, Physics of Semiconductor Devices, 3rd ed. (2007)",
 }
 
-
-def thermal_voltage(temperature):
-    """Thermal voltage kT/q.
-
-    Parameters
-    ----------
-    temperature : array_like
-        Absolute temperature [K].
-
-    Returns
-    -------
-    numpy.ndarray
-        kT/q [V]. 0.025852 V at 300 K.
-    """
-    return K_B * np.asarray(temperature, dtype=float) / Q
 
 
 def bandgap(temperature):
@@ -319,8 +311,8 @@ def doping_from_resistivity(rho, carrier, temperature=300.0):
     rho = np.asarray(rho, dtype=float)
     t = np.broadcast_to(np.asarray(temperature, dtype=float), rho.shape)
     target = np.log(1.0 / (Q * rho))  # ln(N mu)
-    lo = np.full(rho.shape, np.log(1e18))
-    hi = np.full(rho.shape, np.log(1e28))
+    lo = np.full(rho.shape, np.log(DOPING_RANGE[0]))
+    hi = np.full(rho.shape, np.log(DOPING_RANGE[1]))
 
     def g(logn):
         n = np.exp(logn)

@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..materials.silicon import Q
+from ..constants import EPS0, Q
 
 #: Nodes per side of the junction in the ionization-integral quadrature.
 NODES_PER_SIDE = 256
@@ -149,44 +149,48 @@ def _gauss_rule(order):
     return x, 0.5 * w, integ @ np.linalg.inv(vander)
 
 
-_EPS_SI = 11.9 * 8.8541878128e-12  # only to turn slopes back into a doping for the starting guess
+#: Permittivity at which the starting guess's critical-field law holds (silicon, 11.9: Sze & Ng 2007);
+#: it only turns field slopes back into a doping for the first bracket, never enters a result.
+_GUESS_PERMITTIVITY = 11.9 * EPS0
 
 #: Table of the critical field of thick abrupt junctions: log10 of the field slopes
 #: q N / eps [V/m^2] from 8 to 20 (doping from ~1e11 to ~1e23 cm^-3), 8 points a decade.
 TABLE_LOG_SLOPES = np.linspace(8.0, 20.0, 97)
-#: At most this many distinct temperatures get a table in one call; beyond, all rows are solved directly.
-TABLE_MAX_TEMPERATURES = 8
+#: Its temperature axis [K], 5 K apart; rows whose temperature lies outside (beyond the cubic stencil:
+#: below 45 K or above 710 K) are solved directly. Every temperature takes the same path, so a device
+#: gives the same BV alone and in a table with any mix of temperatures.
+TABLE_TEMPERATURES = np.arange(40.0, 720.0 + 2.5, 5.0)
 _TABLES: dict = {}
 
 
-def _critical_field_table(temp, coefficients, breakpoint, ix=None, iy=None):
-    """ln E0 at breakdown of thick abrupt junctions on the :data:`TABLE_LOG_SLOPES` grid (cached).
+def _critical_field_table(coefficients, breakpoint, ix, iy, it):
+    """ln E0 at breakdown of thick abrupt junctions on the (slope, slope, temperature) grid (cached).
 
-    Only the grid points that interpolation at cells ``(ix, iy)`` needs (the
-    4 x 4 neighbourhoods) are solved, once each per temperature; a point's
-    value never depends on which others were asked for.
+    Only the grid points that interpolation at cells ``(ix, iy, it)`` needs
+    (their 4 x 4 x 4 neighbourhoods) are solved, once each; a point's value
+    never depends on which others were asked for.
     """
-    key = (float(temp), coefficients, breakpoint)
-    m = len(TABLE_LOG_SLOPES)
+    key = (coefficients, breakpoint)
+    m, nt = len(TABLE_LOG_SLOPES), len(TABLE_TEMPERATURES)
     if key not in _TABLES:
-        _TABLES[key] = (np.full((m, m), np.nan), np.zeros((m, m), bool))
+        _TABLES[key] = (np.full((m, m, nt), np.nan), np.zeros((m, m, nt), bool))
     table, done = _TABLES[key]
-    need = np.zeros((m, m), bool)
-    if ix is None:
-        need[:] = True
-    else:
-        cells = np.unique(np.stack([ix, iy], axis=1), axis=0)
-        for a in range(-1, 3):
-            for b in range(-1, 3):
-                need[np.clip(cells[:, 0] + a, 0, m - 1), np.clip(cells[:, 1] + b, 0, m - 1)] = True
+    need = np.zeros((m, m, nt), bool)
+    cells = np.unique((np.asarray(ix) * m + np.asarray(iy)) * nt + np.asarray(it))
+    cx, rest = np.divmod(cells, m * nt)
+    cy, ct = np.divmod(rest, nt)
+    for a in range(-1, 3):
+        for b in range(-1, 3):
+            for c in range(-1, 3):
+                need[cx + a, cy + b, ct + c] = True
     todo = np.argwhere(need & ~done)
     if len(todo):
         g = 10.0 ** TABLE_LOG_SLOPES
         sn, sp = g[todo[:, 0]], g[todo[:, 1]]
         inf = np.full(len(todo), np.inf)
-        x, found = _solve_abrupt(sn, sp, inf, inf, np.full(len(todo), float(temp)), coefficients, breakpoint)
-        table[todo[:, 0], todo[:, 1]] = np.where(found, x, np.nan)
-        done[todo[:, 0], todo[:, 1]] = True
+        x, found = _solve_abrupt(sn, sp, inf, inf, TABLE_TEMPERATURES[todo[:, 2]], coefficients, breakpoint)
+        table[todo[:, 0], todo[:, 1], todo[:, 2]] = np.where(found, x, np.nan)
+        done[todo[:, 0], todo[:, 1], todo[:, 2]] = True
     return table
 
 
@@ -241,24 +245,37 @@ def _cubic_weights(t):
                       -1.5 * t3 + 2.0 * t2 + 0.5 * t, 0.5 * t3 - 0.5 * t2], axis=-1))
 
 
-def _table_cells(log_sn, log_sp):
-    """Grid cells of the points, their fractions, and whether the 4 x 4 stencil fits the grid."""
-    g = TABLE_LOG_SLOPES
+def _lagrange_weights(t):
+    """Cubic Lagrange weights of the nodes -1, 0, 1, 2 for a fraction t in [0, 1)."""
+    return np.stack([-t * (t - 1) * (t - 2) / 6, (t + 1) * (t - 1) * (t - 2) / 2,
+                     -(t + 1) * t * (t - 2) / 2, (t + 1) * t * (t - 1) / 6], axis=-1)
+
+
+def _table_cells(log_sn, log_sp, temp):
+    """Grid cells of the points, their fractions, and whether the 4 x 4 x 4 stencil fits the grid."""
+    g, tg = TABLE_LOG_SLOPES, TABLE_TEMPERATURES
     h = g[1] - g[0]
-    fx, fy = (log_sn - g[0]) / h, (log_sp - g[0]) / h
-    ix, iy = np.floor(fx).astype(int), np.floor(fy).astype(int)
-    inside = (ix >= 1) & (ix <= len(g) - 3) & (iy >= 1) & (iy <= len(g) - 3)
-    return np.where(inside, ix, 1), np.where(inside, iy, 1), fx, fy, inside
+    fx, fy, ft = (log_sn - g[0]) / h, (log_sp - g[0]) / h, (temp - tg[0]) / (tg[1] - tg[0])
+    with np.errstate(invalid="ignore"):  # NaN (a row already rejected) casts to some int; it is outside
+        ix, iy, it = np.floor(fx).astype(int), np.floor(fy).astype(int), np.floor(ft).astype(int)
+    inside = ((ix >= 1) & (ix <= len(g) - 3) & (iy >= 1) & (iy <= len(g) - 3)
+              & (it >= 1) & (it <= len(tg) - 3))
+    return np.where(inside, ix, 1), np.where(inside, iy, 1), np.where(inside, it, 1), fx, fy, ft, inside
 
 
-def _interpolate_table(table, log_sn, log_sp):
-    """Bicubic (Catmull-Rom) interpolation of the table; NaN outside or next to a gap."""
-    ix, iy, fx, fy, inside = _table_cells(log_sn, log_sp)
-    wx, wy = _cubic_weights(fx - ix), _cubic_weights(fy - iy)
-    out = np.zeros(len(log_sn))
+def _interpolate_table(table, cells):
+    """Bicubic (Catmull-Rom) in log slope and cubic (Lagrange) in temperature; NaN outside or next to a gap."""
+    ix, iy, it, fx, fy, ft, inside = cells
+    m, nt = table.shape[1], table.shape[2]
+    wx, wy, wt = _cubic_weights(fx - ix), _cubic_weights(fy - iy), _lagrange_weights(ft - it)
+    flat = table.ravel()
+    out = np.zeros(len(ix))
     for a in range(4):
         for b in range(4):
-            out += wx[:, a] * wy[:, b] * table[ix - 1 + a, iy - 1 + b]
+            base = ((ix - 1 + a) * m + (iy - 1 + b)) * nt + (it - 1)
+            inner = (wt[:, 0] * flat[base] + wt[:, 1] * flat[base + 1] + wt[:, 2] * flat[base + 2]
+                     + wt[:, 3] * flat[base + 3])
+            out += wx[:, a] * wy[:, b] * inner
     return np.where(inside, out, np.nan)
 
 
@@ -346,7 +363,7 @@ def _solve_abrupt(sn, sp, tn, tp, temp, coefficients, breakpoint):
                                                  coefficients, breakpoint))
 
     # starting bracket around the one-sided critical field 4010 N^(1/8) V/cm (Baliga 2008, from memory)
-    n_eff = _EPS_SI / Q * sn * sp / (sn + sp) / 1e6  # effective doping [cm^-3] at silicon's permittivity
+    n_eff = _GUESS_PERMITTIVITY / Q * sn * sp / (sn + sp) / 1e6  # effective doping [cm^-3] at silicon's permittivity
     guess = np.log(np.clip(4.01e5 * n_eff ** 0.125, *FIELD_BRACKET))
     lo_lim, hi_lim = np.log(FIELD_BRACKET[0]), np.log(FIELD_BRACKET[1])
     a, b = np.maximum(guess - 0.3, lo_lim), np.minimum(guess + 0.3, hi_lim)
@@ -426,11 +443,15 @@ def breakdown_voltage(vbi, na, nd, tp, tn, grading, linear, permittivity, temper
     use_table : bool
         Take thick abrupt junctions' critical field from a cached table of
         direct solutions (bicubic in log slope: within 1e-6 of the direct
-        solution for most junctions, within 1e-4 where the peak field lies
-        near the 4e5 V/cm change of the hole coefficients, whose kink the
-        interpolation smooths); rows that reach through, and all rows when more
-        than :data:`TABLE_MAX_TEMPERATURES` temperatures occur, are solved
-        directly. Either way one device and a table take the same path.
+        solution for most junctions; where the peak field lies near the
+        4e5 V/cm change of the hole coefficients the interpolation smooths
+        the change: within 1e-4 at 300 K, where the two laws meet with a
+        kink, and up to about 6e-3 at 600-700 K, where the temperature factor
+        makes them jump), cubic in temperature on a 5 K grid (adding about
+        1e-6); rows that reach through, or lie outside the
+        table's doping or temperature range, are solved directly. Whether a
+        row takes the table depends on that row alone, so one device and a
+        table with any mix of temperatures give the same numbers.
 
     Returns
     -------
@@ -455,21 +476,22 @@ def breakdown_voltage(vbi, na, nd, tp, tn, grading, linear, permittivity, temper
     if len(ab):
         sn, sp = Q * nd[ab] / eps[ab], Q * na[ab] / eps[ab]
         direct = np.ones(len(ab), bool)
-        temps = np.unique(temp[ab])
-        if use_table and len(temps) <= TABLE_MAX_TEMPERATURES:
-            # thick junctions: the critical field from a table of direct solutions; a row whose
-            # depletion region would reach a contact is solved directly
-            for tk in temps:
-                rows = np.flatnonzero(temp[ab] == tk)
-                lsn, lsp = np.log10(sn[rows]), np.log10(sp[rows])
-                ix, iy, _, _, inside = _table_cells(lsn, lsp)
-                table = _critical_field_table(tk, coefficients, breakpoint, ix[inside], iy[inside])
-                xt = _interpolate_table(table, lsn, lsp)
+        if use_table:
+            # thick junctions: the critical field from a table of direct solutions over slope, slope and
+            # temperature; a row whose depletion region would reach a contact is solved directly
+            lsn, lsp = np.log10(sn), np.log10(sp)
+            cells = _table_cells(lsn, lsp, temp[ab])
+            inside = cells[-1]
+            if inside.any():
+                table = _critical_field_table(coefficients, breakpoint, cells[0][inside], cells[1][inside],
+                                              cells[2][inside])
+                xt = _interpolate_table(table, cells)
                 e0t = np.exp(xt)
-                thick = np.isfinite(xt) & (e0t / sn[rows] < tn[ab][rows]) & (e0t / sp[rows] < tp[ab][rows])
-                x[ab[rows[thick]]] = xt[thick]
-                found[ab[rows[thick]]] = True
-                direct[rows[thick]] = False
+                with np.errstate(invalid="ignore"):
+                    thick = np.isfinite(xt) & (e0t / sn < tn[ab]) & (e0t / sp < tp[ab])
+                x[ab[thick]] = xt[thick]
+                found[ab[thick]] = True
+                direct[thick] = False
         d = np.flatnonzero(direct)
         if len(d):
             x[ab[d]], found[ab[d]] = _solve_abrupt(sn[d], sp[d], tn[ab][d], tp[ab][d], temp[ab][d], coefficients,

@@ -31,7 +31,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..materials.silicon import Q
+from ..constants import Q
 
 
 def _split_contact(w, s):

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..materials.silicon import Q, thermal_voltage
+from ..constants import Q, thermal_voltage
 
 
 def builtin_voltage(na, nd, ni, temperature):

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..materials.silicon import Q
+from ..constants import Q
 
 
 def recombination_saturation_density(ni, depletion_width, lifetime):
