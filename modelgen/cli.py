@@ -148,10 +148,9 @@ def card_command(device_files, output, fmt, dialect, section, quiet):
     if not quiet:
         for (r, _), f in zip(loaded, device_files):
             prefix = f"{f}: " if len(loaded) > 1 else ""
-            for w in r.warnings(0):
-                if not w.startswith("note:"):
-                    kind = "" if w.startswith("caution:") else "warning: "
-                    click.echo(f"modelgen: {prefix}{kind}{w}", err=True)
+            for m in r.findings_for(0):
+                if m.severity != "note":
+                    click.echo(f"modelgen: {prefix}{m.severity}: {m.text}", err=True)
     _emit(text, output)
 
 

@@ -180,8 +180,8 @@ def _per_card_findings(result, rows):
     picked = np.zeros(len(result), bool)
     picked[np.asarray(rows, int)] = True
     for f in result.findings:
-        if f.text.startswith("caution:"):
-            continue  # the same for every card: said once in the file header
+        if f.severity == "caution":
+            continue  # a standing reminder, the same for every card: said once in the file header
         mask = f.mask & picked
         if not mask.any():
             continue
@@ -309,7 +309,7 @@ def file_header(dialect, title, count, *, result=None, extra=()):
     header += comment_lines(CAUTION)
     if result is not None:
         for f in result.findings:
-            if f.text.startswith("caution:") and f.mask.any():
+            if f.severity == "caution" and f.mask.any():
                 header += comment_lines(f.text)
     left = left_out_names(dialect)
     if left:
