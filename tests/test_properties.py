@@ -45,12 +45,14 @@ _BATCH_DEVICE = {"name": "DTEMP", "area": "1e-3 cm^2",  # invented test device, 
 
 @settings(max_examples=15, deadline=None)
 @given(temps=st.lists(st.floats(233.15, 423.15), min_size=2, max_size=14, unique=True),
-       n_doping=st.floats(15.0, 17.5))
-def test_batch_equals_single_for_any_mix_of_temperatures(temps, n_doping):
+       n_doping=st.floats(15.0, 17.5), graded=st.booleans())
+def test_batch_equals_single_for_any_mix_of_temperatures(temps, n_doping, graded):
     import numpy as np
 
     from modelgen.device import concatenate
     table = {**_BATCH_DEVICE, "n": {**_BATCH_DEVICE["n"], "doping": f"{10 ** n_doping:.6g} cm^-3"}}
+    if graded:
+        table.update(profile="linear", grading="1e21 cm^-4")
     alone = [description.from_mapping({**table, "temperature": f"{t!r} K"}) for t in temps]
     lot = extraction.derive(concatenate(alone))
     for i, device in enumerate(alone):
