@@ -531,8 +531,9 @@ def _findings(device, mat, sides, env, el, bd):
                          "BV = {bv:.4g} V is lower than a thick junction's",
                          {"side": np.where(reach_p & reach_n, "p and n", np.where(reach_p, "p", "n")), "bv": bv},
                          severity="warning", kind="reach_through"))
-    found.append(Finding(np.isnan(bv), "no avalanche breakdown below a peak field of 2e6 V/cm; BV is left "
-                         "off the card", {}, severity="warning", kind="no_breakdown"))
+    found.append(Finding(np.isnan(bv), f"no avalanche breakdown below a peak field of "
+                         f"{breakdown.FIELD_BRACKET[1] / 100:.0e} V/cm; BV is left off the card".replace("e+0", "e"),
+                         {}, severity="warning", kind="no_breakdown"))
     with np.errstate(invalid="ignore"):
         tunnel = bv < 4.0 * env["eg"]
     found.append(Finding(tunnel, "BV = {bv:.3g} V is below 4 Eg/q: tunnelling (Zener) breakdown dominates "
