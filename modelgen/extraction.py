@@ -646,11 +646,14 @@ def _blame(device, bad, what, value, deps, problems, rule="which must be finite 
         for outside in (True, False):
             mask = np.zeros(len(device), bool)
             mask[rows[(pick == j) & ((best > 0) == outside)]] = True
-            reason = ("far outside the range where the models hold" if outside else
-                      "check it and the inputs it combines with")
             unit = PLAUSIBLE[key.split(".", 1)[1] if key.startswith(("p.", "n.")) else key][2]
-            problems.add(mask, key, f"gives {what} = {{v:.4g}}, {rule}: this input "
-                         f"({{x:.4g}}{' ' + unit if unit else ''}) is {reason}", {"v": shown, "x": x})
+            given = f"{{x:.4g}}{' ' + unit if unit else ''}"
+            if outside:
+                text = f"{given} is far outside the range where the models hold: it gives {what} = {{v:.4g}}, {rule}"
+            else:
+                text = (f"{given} with the other inputs gives {what} = {{v:.4g}}, {rule}: check it and the "
+                        "inputs it combines with")
+            problems.add(mask, key, text, {"v": shown, "x": x})
 
 
 def _guard(device, params, derived, problems):
@@ -664,7 +667,7 @@ def _guard(device, params, derived, problems):
         if name == "BV":
             ok |= np.isnan(v)
         _blame(device, ~ok, name, v, DEPENDS[name], problems,
-               f"outside what a diode can have ({lo:g} to {hi:g} {UNITS[name]})")
+               f"outside what any diode has ({lo:g} to {hi:g} {UNITS[name]})")
 
 def _junction_width(result, bias):
     d = result.device
