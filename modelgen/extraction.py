@@ -297,18 +297,23 @@ def derive(device: Device, problems: Problems | None = None) -> Result:
         local = Problems(len(rows), sources=sub.source, rows=sub.line, collect=problems.collect)
         parts.append(_derive_material(sub, materials.get(name), local))
         order.append(rows)
-        for mask, key, message, values in local.found:
-            full = np.zeros(len(device), bool)
-            full[rows[mask]] = True
-            vals = None
-            if values:
-                vals = {}
-                for k, v in values.items():
-                    arr = np.empty(len(device), dtype=object)
-                    arr[rows] = list(v) if isinstance(v, np.ndarray) else v
-                    vals[k] = arr
-            problems.add(full, key, message, vals)
+        _forward(local, problems, rows)
     return concatenate(parts, order=np.concatenate(order))
+
+
+def _forward(local, problems, rows):
+    """Record the problems found on the sub-table ``rows`` (collected in ``local``) in ``problems``."""
+    for mask, key, message, values in local.found:
+        full = np.zeros(problems.n, bool)
+        full[rows[mask]] = True
+        vals = None
+        if values:
+            vals = {}
+            for k, v in values.items():
+                arr = np.empty(problems.n, dtype=object)
+                arr[rows] = list(v) if isinstance(v, np.ndarray) else v
+                vals[k] = arr
+        problems.add(full, key, message, vals)
 
 
 def _derive_material(device: Device, mat, problems: Problems) -> Result:
@@ -323,6 +328,13 @@ def _derive_material(device: Device, mat, problems: Problems) -> Result:
 
 
 def _stages(device, mat, problems):
+    """The stages in order; each takes what the earlier ones computed.
+
+    1 conditions (temperature, ni, band gap, permittivity, area); 2 side materials (doping, mobilities,
+    lifetime, diffusion length, BGN); 3 electrostatics (Vbi, VJ, depletion); 4 neutral regions (width,
+    W/L, J0, transit time, resistance); 5 currents (IS, TT, ISR, IKF, RS); 6 capacitance; 7 breakdown;
+    8 findings; 9 guard on the card parameters.
+    """
     env = _conditions(device, mat)
     sides = {"p": _side_material(device, device.p, "p", mat, env, problems),
              "n": _side_material(device, device.n, "n", mat, env, problems)}
@@ -351,7 +363,7 @@ def _stages(device, mat, problems):
     }
     derived["p"]["depletion_extent"] = el["xp0"]
     derived["n"]["depletion_extent"] = el["xn0"]
-    _guard(device, params, derived, problems)
+    _guard(device, params, problems)
     return Result(device=device, params=params, derived=derived, findings=findings, sources=dict(mat.SOURCES))
 
 
@@ -656,7 +668,7 @@ def _blame(device, bad, what, value, deps, problems, rule="which must be finite 
             problems.add(mask, key, text, {"v": shown, "x": x})
 
 
-def _guard(device, params, derived, problems):
+def _guard(device, params, problems):
     """Stage 9: card parameters that must be finite and positive are; else an error naming the input.
 
     NaN BV is allowed (no avalanche within the field bracket: warned, left off the card); RS may be zero.
