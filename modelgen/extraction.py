@@ -57,6 +57,10 @@ KINDS = {
 }
 
 
+#: Kind of each finding template seen, so that a finding rebuilt from its text alone keeps its kind.
+_KIND_OF: dict = {}
+
+
 class Finding:
     """A note, warning or caution that applies to the devices where ``mask`` is True.
 
@@ -90,6 +94,10 @@ class Finding:
                     break
         if severity not in _PREFIX:
             raise ValueError(f"severity must be one of {', '.join(SEVERITIES)}, not {severity!r}")
+        if kind:
+            _KIND_OF.setdefault(text, kind)
+        else:  # the older three-argument form (a copy of a finding): its kind from the template
+            kind = _KIND_OF.get(text, "")
         self.mask = mask
         self.template = text
         self.values = {} if values is None else values

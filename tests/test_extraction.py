@@ -337,6 +337,9 @@ def test_findings_have_severity_and_kind_and_keep_the_old_text():
     # the older form, a prefix in the text, still reads as a severity
     old = extraction.Finding(np.ones(1, bool), "note: x {a}", {"a": np.array([1])})
     assert (old.severity, old.template, old.text, old.message(0)) == ("note", "x {a}", "note: x {a}", "note: x 1")
+    # a finding copied from its text alone (as lots.py merges chunks) keeps severity and kind
+    copies = [extraction.Finding(f.mask, f.text, f.values) for f in r.findings]
+    assert [(c.severity, c.kind) for c in copies] == [(f.severity, f.kind) for f in r.findings]
 
 
 # ---- absurd but finite inputs: an error naming the input, never a card lacking a parameter -------------
