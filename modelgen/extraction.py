@@ -57,6 +57,10 @@ KINDS = {
 }
 
 
+#: Kind of each finding template seen, so that a finding rebuilt from its text alone keeps its kind.
+_KIND_OF: dict = {}
+
+
 class Finding:
     """A note, warning or caution that applies to the devices where ``mask`` is True.
 
@@ -90,6 +94,10 @@ class Finding:
                     break
         if severity not in _PREFIX:
             raise ValueError(f"severity must be one of {', '.join(SEVERITIES)}, not {severity!r}")
+        if kind:
+            _KIND_OF.setdefault(text, kind)
+        else:  # the older three-argument form (a copy of a finding): its kind from the template
+            kind = _KIND_OF.get(text, "")
         self.mask = mask
         self.template = text
         self.values = {} if values is None else values
@@ -297,18 +305,23 @@ def derive(device: Device, problems: Problems | None = None) -> Result:
         local = Problems(len(rows), sources=sub.source, rows=sub.line, collect=problems.collect)
         parts.append(_derive_material(sub, materials.get(name), local))
         order.append(rows)
-        for mask, key, message, values in local.found:
-            full = np.zeros(len(device), bool)
-            full[rows[mask]] = True
-            vals = None
-            if values:
-                vals = {}
-                for k, v in values.items():
-                    arr = np.empty(len(device), dtype=object)
-                    arr[rows] = list(v) if isinstance(v, np.ndarray) else v
-                    vals[k] = arr
-            problems.add(full, key, message, vals)
+        _forward(local, problems, rows)
     return concatenate(parts, order=np.concatenate(order))
+
+
+def _forward(local, problems, rows):
+    """Record the problems found on the sub-table ``rows`` (collected in ``local``) in ``problems``."""
+    for mask, key, message, values in local.found:
+        full = np.zeros(problems.n, bool)
+        full[rows[mask]] = True
+        vals = None
+        if values:
+            vals = {}
+            for k, v in values.items():
+                arr = np.empty(problems.n, dtype=object)
+                arr[rows] = list(v) if isinstance(v, np.ndarray) else v
+                vals[k] = arr
+        problems.add(full, key, message, vals)
 
 
 def _derive_material(device: Device, mat, problems: Problems) -> Result:
@@ -323,6 +336,13 @@ def _derive_material(device: Device, mat, problems: Problems) -> Result:
 
 
 def _stages(device, mat, problems):
+    """The stages in order; each takes what the earlier ones computed.
+
+    1 conditions (temperature, ni, band gap, permittivity, area); 2 side materials (doping, mobilities,
+    lifetime, diffusion length, BGN); 3 electrostatics (Vbi, VJ, depletion); 4 neutral regions (width,
+    W/L, J0, transit time, resistance); 5 currents (IS, TT, ISR, IKF, RS); 6 capacitance; 7 breakdown;
+    8 findings; 9 guard on the card parameters.
+    """
     env = _conditions(device, mat)
     sides = {"p": _side_material(device, device.p, "p", mat, env, problems),
              "n": _side_material(device, device.n, "n", mat, env, problems)}
@@ -351,7 +371,7 @@ def _stages(device, mat, problems):
     }
     derived["p"]["depletion_extent"] = el["xp0"]
     derived["n"]["depletion_extent"] = el["xn0"]
-    _guard(device, params, derived, problems)
+    _guard(device, params, problems)
     return Result(device=device, params=params, derived=derived, findings=findings, sources=dict(mat.SOURCES))
 
 
@@ -531,8 +551,9 @@ def _findings(device, mat, sides, env, el, bd):
                          "BV = {bv:.4g} V is lower than a thick junction's",
                          {"side": np.where(reach_p & reach_n, "p and n", np.where(reach_p, "p", "n")), "bv": bv},
                          severity="warning", kind="reach_through"))
-    found.append(Finding(np.isnan(bv), "no avalanche breakdown below a peak field of 2e6 V/cm; BV is left "
-                         "off the card", {}, severity="warning", kind="no_breakdown"))
+    found.append(Finding(np.isnan(bv), f"no avalanche breakdown below a peak field of "
+                         f"{breakdown.FIELD_BRACKET[1] / 100:.0e} V/cm; BV is left off the card".replace("e+0", "e"),
+                         {}, severity="warning", kind="no_breakdown"))
     with np.errstate(invalid="ignore"):
         tunnel = bv < 4.0 * env["eg"]
     found.append(Finding(tunnel, "BV = {bv:.3g} V is below 4 Eg/q: tunnelling (Zener) breakdown dominates "
@@ -645,14 +666,17 @@ def _blame(device, bad, what, value, deps, problems, rule="which must be finite 
         for outside in (True, False):
             mask = np.zeros(len(device), bool)
             mask[rows[(pick == j) & ((best > 0) == outside)]] = True
-            reason = ("far outside the range where the models hold" if outside else
-                      "check it and the inputs it combines with")
             unit = PLAUSIBLE[key.split(".", 1)[1] if key.startswith(("p.", "n.")) else key][2]
-            problems.add(mask, key, f"gives {what} = {{v:.4g}}, {rule}: this input "
-                         f"({{x:.4g}}{' ' + unit if unit else ''}) is {reason}", {"v": shown, "x": x})
+            given = f"{{x:.4g}}{' ' + unit if unit else ''}"
+            if outside:
+                text = f"{given} is far outside the range where the models hold: it gives {what} = {{v:.4g}}, {rule}"
+            else:
+                text = (f"{given} with the other inputs gives {what} = {{v:.4g}}, {rule}: check it and the "
+                        "inputs it combines with")
+            problems.add(mask, key, text, {"v": shown, "x": x})
 
 
-def _guard(device, params, derived, problems):
+def _guard(device, params, problems):
     """Stage 9: card parameters that must be finite and positive are; else an error naming the input.
 
     NaN BV is allowed (no avalanche within the field bracket: warned, left off the card); RS may be zero.
@@ -663,7 +687,7 @@ def _guard(device, params, derived, problems):
         if name == "BV":
             ok |= np.isnan(v)
         _blame(device, ~ok, name, v, DEPENDS[name], problems,
-               f"outside what a diode can have ({lo:g} to {hi:g} {UNITS[name]})")
+               f"outside what any diode has ({lo:g} to {hi:g} {UNITS[name]})")
 
 def _junction_width(result, bias):
     d = result.device

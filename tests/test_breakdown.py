@@ -304,17 +304,18 @@ def test_table_of_thick_junctions_matches_the_direct_solution(temperature):
     assert err.max() < (2e-4 if temperature == 300.15 else 2e-3)
 
 
-def test_graded_table_matches_direct_bisection():
-    # graded junctions take their critical field from a table over a/eps; here against a direct
-    # bisection with the same grid quadrature (both modelgen's: this checks the interpolation)
-    import numpy as np
+@pytest.mark.parametrize("temperature", [233.15, 300.15, 398.15])
+def test_graded_table_matches_direct_bisection(temperature):
+    # graded junctions take their critical field from a table over a/eps and temperature; here
+    # against a direct bisection with the same grid quadrature (both modelgen's: this checks the
+    # interpolation)
     from modelgen.physics import breakdown as b
     from modelgen.materials import silicon as s
     rng = np.random.default_rng(11)
     n = 60
     a = 10 ** rng.uniform(26, 30, n)  # 1e18-1e22 cm^-4
     eps = np.full(n, 11.9 * s.EPS0)
-    one, inf, t = np.ones(n), np.full(n, np.inf), np.full(n, 300.15)
+    one, inf, t = np.ones(n), np.full(n, np.inf), np.full(n, temperature)
     bv, e0, _, _ = b.breakdown_voltage(np.full(n, 0.6), one, one, inf, inf, a, np.ones(n, bool), eps, t,
                                        s.ionization_coefficients, breakpoint=s.IONIZATION_BREAKPOINT)
     lo, hi = np.full(n, np.log(b.FIELD_BRACKET[0])), np.full(n, np.log(b.FIELD_BRACKET[1]))
@@ -323,4 +324,7 @@ def test_graded_table_matches_direct_bisection():
         y, f, _, _, _ = b.field_profile(np.exp(mid), one, one, inf, inf, a, np.ones(n, bool), eps)
         under = b.ionization_integral(y, f, t, s.ionization_coefficients) < 1.0
         lo, hi = np.where(under, mid, lo), np.where(under, hi, mid)
-    np.testing.assert_allclose(e0, np.exp(0.5 * (lo + hi)), rtol=1e-5)
+    # 1e-5 at 300 K; elsewhere the fields near the 4e5 V/cm change of the hole law, where the
+    # temperature factor makes the two fits jump, are smoothed by the interpolation (measured 1.2e-4
+    # at 233 K; the per-temperature table before gave 8e-5 there)
+    np.testing.assert_allclose(e0, np.exp(0.5 * (lo + hi)), rtol=1e-5 if temperature == 300.15 else 2e-4)

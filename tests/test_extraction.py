@@ -310,6 +310,15 @@ def test_a_second_material_goes_through_derive_grouped_by_material(monkeypatch):
         2 * vt * math.log(2), rel=1e-9)
     assert si["params"]["BV"] - toy["params"]["BV"] == pytest.approx(2 * vt * math.log(2), rel=1e-6)
     assert "invented for the test: half of silicon's" in mixed.sources.values()
+    # a problem in one material's group is reported on its own row of the table
+    from modelgen.errors import Problems
+    thin = {**toy_table, "n": {**toy_table["n"], "thickness": "0.1 um"}}
+    table = device_module.concatenate([description.from_mapping(PLAIN, file="lot"),
+                                       description.from_mapping(thin, file="lot")])
+    table.line = (2, 3)
+    problems = Problems(2, sources=table.source, rows=table.line, collect=True)
+    extraction.derive(table, problems=problems)
+    assert [(e.row, e.key) for e in problems.errors()] == [(3, "n.thickness")]
 
 
 # ---- findings carry a severity and a kind ------------------------------------------------------------
@@ -328,6 +337,9 @@ def test_findings_have_severity_and_kind_and_keep_the_old_text():
     # the older form, a prefix in the text, still reads as a severity
     old = extraction.Finding(np.ones(1, bool), "note: x {a}", {"a": np.array([1])})
     assert (old.severity, old.template, old.text, old.message(0)) == ("note", "x {a}", "note: x {a}", "note: x 1")
+    # a finding copied from its text alone (as lots.py merges chunks) keeps severity and kind
+    copies = [extraction.Finding(f.mask, f.text, f.values) for f in r.findings]
+    assert [(c.severity, c.kind) for c in copies] == [(f.severity, f.kind) for f in r.findings]
 
 
 # ---- absurd but finite inputs: an error naming the input, never a card lacking a parameter -------------

@@ -12,7 +12,8 @@ material and evaluates each group with its own module.
 
 from __future__ import annotations
 
-from typing import Callable, Protocol, runtime_checkable
+from collections.abc import Callable
+from typing import Protocol, runtime_checkable
 
 from . import silicon
 

@@ -195,46 +195,89 @@ def _critical_field_table(coefficients, breakpoint, ix, iy, it):
 
 
 #: Table of the critical field of linearly graded junctions: log10 of a / eps [m^-4 / (F/m)],
-#: 16 points a decade, covering gradients from about 1e13 to 1e24 cm^-4 in silicon.
+#: 16 points a decade, covering gradients from about 1e13 to 1e24 cm^-4 in silicon; its temperature
+#: axis is :data:`TABLE_TEMPERATURES`.
 GRADED_LOG_A = np.linspace(31.0, 42.0, 177)
 _GRADED: dict = {}
 
 
-def _graded_table(temp, coefficients, iterations):
-    """ln E0 at breakdown of linearly graded junctions over :data:`GRADED_LOG_A` (cached)."""
-    key = (float(temp), coefficients)
+def _graded_solve(g, temp, coefficients, iterations):
+    """ln E0 at breakdown of linearly graded junctions with a / eps = ``g`` at ``temp``, by bisection.
+
+    The field and potential depend on a and eps only through a / eps. NaN where the root lies outside
+    :data:`FIELD_BRACKET`. Each entry depends on its own ``g`` and ``temp`` alone.
+    """
+    m = len(g)
+    one = np.ones(m)
+    lo = np.full(m, np.log(FIELD_BRACKET[0]))
+    hi = np.full(m, np.log(FIELD_BRACKET[1]))
+
+    def integral(e0):
+        y, f, _, _, _ = field_profile(e0, one, one, np.inf * one, np.inf * one, g, np.ones(m, bool), one)
+        return ionization_integral(y, f, temp, coefficients)
+
+    ok = (integral(np.exp(lo)) < 1.0) & (integral(np.exp(hi)) > 1.0)
+    for _ in range(iterations):
+        mid = 0.5 * (lo + hi)
+        under = integral(np.exp(mid)) < 1.0
+        lo = np.where(under, mid, lo)
+        hi = np.where(under, hi, mid)
+    return np.where(ok, 0.5 * (lo + hi), np.nan)
+
+
+def _graded_table(coefficients, iterations, ia, it):
+    """ln E0 at breakdown of graded junctions on the (log a/eps, temperature) grid (cached).
+
+    Only the 4 x 4 neighbourhoods of cells ``(ia, it)`` are solved, once each.
+    """
+    key = (coefficients, iterations)
+    m, nt = len(GRADED_LOG_A), len(TABLE_TEMPERATURES)
     if key not in _GRADED:
-        g = 10.0 ** GRADED_LOG_A  # a / eps; the field and potential depend on a and eps only through it
-        m = len(g)
-        one = np.ones(m)
-        lo = np.full(m, np.log(FIELD_BRACKET[0]))
-        hi = np.full(m, np.log(FIELD_BRACKET[1]))
-
-        def integral(e0):
-            y, f, _, _, _ = field_profile(e0, one, one, np.inf * one, np.inf * one, g, np.ones(m, bool), one)
-            return ionization_integral(y, f, np.full(m, float(temp)), coefficients)
-
-        ok = (integral(np.exp(lo)) < 1.0) & (integral(np.exp(hi)) > 1.0)
-        for _ in range(iterations):
-            mid = 0.5 * (lo + hi)
-            under = integral(np.exp(mid)) < 1.0
-            lo = np.where(under, mid, lo)
-            hi = np.where(under, hi, mid)
-        _GRADED[key] = np.where(ok, 0.5 * (lo + hi), np.nan)
-    return _GRADED[key]
+        _GRADED[key] = (np.full((m, nt), np.nan), np.zeros((m, nt), bool))
+    table, done = _GRADED[key]
+    need = np.zeros((m, nt), bool)
+    ca, ct = np.divmod(np.unique(np.asarray(ia) * nt + np.asarray(it)), nt)
+    for a in range(-1, 3):
+        for c in range(-1, 3):
+            need[ca + a, ct + c] = True
+    todo = np.argwhere(need & ~done)
+    if len(todo):
+        table[todo[:, 0], todo[:, 1]] = _graded_solve(10.0 ** GRADED_LOG_A[todo[:, 0]],
+                                                      TABLE_TEMPERATURES[todo[:, 1]], coefficients, iterations)
+        done[todo[:, 0], todo[:, 1]] = True
+    return table
 
 
 def _graded_critical_field(log_a, eps, temp, coefficients, iterations):
-    """ln E0 at breakdown for graded junctions by cubic (Catmull-Rom) interpolation of the table."""
-    table = _graded_table(temp, coefficients, iterations)
-    g = GRADED_LOG_A
-    f = (log_a - np.log10(eps) - g[0]) / (g[1] - g[0])
-    i = np.floor(f).astype(int)
-    inside = (i >= 1) & (i <= len(g) - 3)
-    i = np.where(inside, i, 1)
-    w = _cubic_weights(f - i)
-    x = sum(w[:, k] * table[i - 1 + k] for k in range(4))
-    found = inside & np.isfinite(x)
+    """ln E0 at breakdown for graded junctions.
+
+    Cubic (Catmull-Rom) in log a/eps and cubic (Lagrange) in temperature from the table; rows
+    outside the table's temperature range are solved directly. Whether a row takes the table depends
+    on that row alone.
+    """
+    g, tg = GRADED_LOG_A, TABLE_TEMPERATURES
+    log_g = log_a - np.log10(eps)
+    f = (log_g - g[0]) / (g[1] - g[0])
+    ft = (temp - tg[0]) / (tg[1] - tg[0])
+    with np.errstate(invalid="ignore"):  # NaN (a row already rejected) casts to some int; it is outside
+        i, it = np.floor(f).astype(int), np.floor(ft).astype(int)
+    in_a = (i >= 1) & (i <= len(g) - 3)
+    in_t = (it >= 1) & (it <= len(tg) - 3)
+    inside = in_a & in_t
+    x = np.full(len(log_a), np.nan)
+    if inside.any():
+        table = _graded_table(coefficients, iterations, i[inside], it[inside])
+        j = np.flatnonzero(inside)
+        w, wt = _cubic_weights(f[j] - i[j]), _lagrange_weights(ft[j] - it[j])
+        out = np.zeros(len(j))
+        for a in range(4):
+            inner = sum(wt[:, c] * table[i[j] - 1 + a, it[j] - 1 + c] for c in range(4))
+            out += w[:, a] * inner
+        x[j] = out
+    direct = np.flatnonzero(in_a & ~in_t)
+    if len(direct):
+        x[direct] = _graded_solve(10.0 ** log_g[direct], temp[direct], coefficients, iterations)
+    found = in_a & np.isfinite(x)
     return np.where(found, x, np.nan), found
 
 
@@ -498,12 +541,10 @@ def breakdown_voltage(vbi, na, nd, tp, tn, grading, linear, permittivity, temper
                                                    breakpoint)
     linear_rows = np.flatnonzero(lin)
     if len(linear_rows):
-        # the graded field depends on the gradient alone (reach-through is not modelled for it):
-        # the critical field comes from a table over log10 a, solved on first use at each temperature
-        for tk in np.unique(temp[linear_rows]):
-            rows = linear_rows[temp[linear_rows] == tk]
-            x[rows], found[rows] = _graded_critical_field(np.log10(grading[rows]), eps[rows], tk, coefficients,
-                                                          iterations)
+        # the graded field depends on a / eps alone (reach-through is not modelled for it): the
+        # critical field comes from a table over log10 a/eps and temperature, solved lazily
+        x[linear_rows], found[linear_rows] = _graded_critical_field(
+            np.log10(grading[linear_rows]), eps[linear_rows], temp[linear_rows], coefficients, iterations)
     e0 = np.exp(np.where(found, x, np.log(FIELD_BRACKET[1])))
     _, _, potential, reach_p, reach_n = field_profile(e0, na, nd, tp, tn, grading, lin, eps, nodes=2)
     bv = np.where(found, potential - np.asarray(vbi, float), np.nan)
