@@ -17,7 +17,7 @@ import numpy as np
 
 from . import materials
 from .device import Device, Side
-from .errors import InputError, Problems, shown
+from .errors import InputError, Problems, shown, type_name
 from .textio import read_text
 from .units import KINDS, MAX_QUANTITY, parse_quantity
 
@@ -181,13 +181,16 @@ def _flatten(table, file, errors=None):
                 continue
             for kk, vv in v.items():
                 key = f"{k}.{kk}"
-                if isinstance(vv, dict) or key not in KEYS:
+                if key in KEYS and isinstance(vv, dict):
+                    problem("expected a value, got a table", key)
+                    continue
+                if key not in KEYS:
                     known = sorted(x.split(".", 1)[1] for x in KEYS if x.startswith(k + "."))
                     problem(f"unknown key; known keys in [{k}]: {', '.join(known)}", key)
                     continue
                 flat[key] = vv
         elif k in _TABLES - {"material"}:
-            problem(f"[{k}] must be a table of keys, not a {type(v).__name__}", k)
+            problem(f"[{k}] must be a table of keys, got {type_name(v)}", k)
         elif k not in KEYS:
             known = sorted(x for x in KEYS if "." not in x)
             problem(f"unknown key; known top-level keys: {', '.join(known)}", k)
@@ -206,7 +209,7 @@ def _convert_one(key, raw, file, row):
     spec = KEYS[key]
     if spec.kind == "text":
         if not isinstance(raw, str):
-            raise InputError(f"expected a string, got {type(raw).__name__}", file=file, row=row, key=key)
+            raise InputError(f"expected a string, got {type_name(raw)}", file=file, row=row, key=key)
         return raw
     if spec.kind == "choice":
         if not isinstance(raw, str) or raw not in spec.choices:
@@ -245,6 +248,29 @@ def convert(flat, *, file=None, row=None, errors=None):
                 raise
             errors.append(e)
     return out
+
+
+def check_range(key, v, fail):
+    """Report through ``fail(mask, key, message, values)`` the values of ``v`` (SI, NaN: not given)
+    outside the allowed and accepted ranges of ``key``; the first broken rule of a value is reported."""
+    spec = KEYS[key]
+    given = ~np.isnan(v)
+    if spec.minimum is not None:
+        fail(given & ~(v > spec.minimum), key,
+             "must be positive" if spec.minimum == 0 else f"must be greater than {spec.minimum:g}")
+    if spec.at_least is not None:
+        fail(given & ~(v >= spec.at_least), key,
+             "must not be negative" if spec.at_least == 0 else "is below the allowed range (" + spec.help + ")")
+    if spec.maximum is not None:
+        fail(given & ~(v < spec.maximum), key, "is above the allowed range (" + spec.help + ")")
+    if spec.plausible is not None:
+        low, high = spec.plausible
+        outside = given & ~((v >= low) & (v <= high))
+        if spec.infinite_ok:
+            outside &= ~np.isposinf(v)
+        unit = KINDS[spec.kind][0] + " " if spec.kind in KINDS else ""
+        fail(outside, key, "{v:.4g} " + unit + "is outside the accepted range, " + spec.accepted
+             + " (" + spec.why + ")", {"v": v})
 
 
 def _column(columns, key, n):
@@ -308,27 +334,9 @@ def assemble(columns, *, sources=None, rows=None, problems=None):
     linear = profile == "linear"
 
     num = {k: _column(columns, k, n) for k, spec in KEYS.items() if spec.kind not in ("text", "choice")}
-    for key, spec in KEYS.items():
-        if key not in num or key not in columns:
-            continue
-        v = num[key]
-        given = ~np.isnan(v)
-        if spec.minimum is not None:
-            fail(given & ~(v > spec.minimum), key,
-                 "must be positive" if spec.minimum == 0 else f"must be greater than {spec.minimum:g}")
-        if spec.at_least is not None:
-            fail(given & ~(v >= spec.at_least), key,
-                 "must not be negative" if spec.at_least == 0 else "is below the allowed range (" + spec.help + ")")
-        if spec.maximum is not None:
-            fail(given & ~(v < spec.maximum), key, "is above the allowed range (" + spec.help + ")")
-        if spec.plausible is not None:
-            low, high = spec.plausible
-            outside = given & ~((v >= low) & (v <= high))
-            if spec.infinite_ok:
-                outside &= ~np.isposinf(v)
-            unit = KINDS[spec.kind][0] + " " if spec.kind in KINDS else ""
-            fail(outside, key, "{v:.4g} " + unit + "is outside the accepted range, " + spec.accepted
-                 + " (" + spec.why + ")", {"v": v})
+    for key in KEYS:
+        if key in num and key in columns:
+            check_range(key, num[key], fail)
     for key in _REQUIRED:
         if key in num:
             fail(np.isnan(num[key]), key, "required key is missing")

@@ -24,6 +24,20 @@ def shown(value, limit=SHOWN):
     return text if len(text) <= 2 * limit else text[:limit] + "..."
 
 
+_TYPE_NAMES = {"NoneType": "null", "str": "string", "int": "integer", "float": "number", "bool": "boolean",
+               "dict": "table", "list": "list"}
+
+
+def type_name(value):
+    """How a TOML or JSON user would name the type of ``value`` ("string", "table", "null", ...)."""
+    return _TYPE_NAMES.get(type(value).__name__, type(value).__name__)
+
+
+def printable(text):
+    """True if ``text`` holds no control character or line break."""
+    return _UNPRINTABLE.search(text) is None
+
+
 def one_line(text):
     """``text`` with control characters and line breaks escaped, so it prints as one line."""
     return _UNPRINTABLE.sub(lambda m: repr(m.group())[1:-1], text)
@@ -132,14 +146,16 @@ class Problems:
         """Every problem as a located InputError, ordered by row, then as found.
 
         Only the first problem of each row and key is kept: a cell that did
-        not parse is not reported again as missing.
+        not parse is not reported again as missing, nor are the keys of a
+        table (``p.doping``) once the table itself (``p``) was wrong.
         """
         import numpy as np
 
         items, seen = [], set()
         for order, (mask, key, message, values) in enumerate(self.found):
+            parent = key.split(".", 1)[0] if isinstance(key, str) else key
             for i in np.flatnonzero(mask).tolist():
-                if (i, key) not in seen:
+                if (i, key) not in seen and (i, parent) not in seen:
                     seen.add((i, key))
                     items.append((i, order, self._error(i, key, message, values)))
         return [e for _, _, e in sorted(items, key=lambda t: (t[0], t[1]))]

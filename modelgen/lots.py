@@ -30,7 +30,7 @@ import numpy as np
 
 from . import description, extraction
 from .description import KEYS
-from .errors import InputError, Problems, shown
+from .errors import InputError, Problems, shown, type_name
 from .textio import read_text
 from .units import MAX_QUANTITY, MAX_UNIT, apply_factor, parse_quantity, unit_factor
 
@@ -271,9 +271,16 @@ def _records(text, path):
     """
     if "\r" in text:
         text = text.replace("\r\n", "\n").replace("\r", "\n")
+    numbered = [(k + 1, ln) for k, ln in enumerate(text.split("\n")) if ln.strip(" ,\t")]
+    starts, one_line = [k for k, _ in numbered], np.zeros(len(numbered), int)
     if '"' not in text:  # no quoting anywhere: a plain split is the same and faster
-        numbered = [(k + 1, ln) for k, ln in enumerate(text.split("\n")) if ln.strip(" ,\t")]
-        return [ln.split(",") for _, ln in numbered], [k for k, _ in numbered], np.zeros(len(numbered), int)
+        return [ln.split(",") for _, ln in numbered], starts, one_line
+    try:
+        records = list(csv.reader([ln for _, ln in numbered]))
+    except csv.Error:
+        records = None  # the careful reading below says where
+    if records is not None and len(records) == len(numbered):  # no quoted cell holds a line break
+        return records, starts, one_line
     records, starts, spans = [], [], []
     reader = csv.reader(io.StringIO(text, newline="\n"))
     done = 0
@@ -323,6 +330,8 @@ def _apply_options(columns, lines, path, problems, sets, name_pattern):
         if key in columns:
             raise InputError("given both in the table and with --set", file=path, key=key)
         v = description.convert({key: value}, file="--set")[key]
+        if not isinstance(v, str):  # a constant out of range is one error, not one per row
+            description.check_range(key, np.array([v]), Problems(1, sources=["--set"]).add)
         columns[key] = np.array([v] * n, dtype=object if isinstance(v, str) else float)
     if name_pattern is not None:
         if "name" in columns:
@@ -376,7 +385,7 @@ def read_list(path, *, sets=None, name_pattern=None, collect=True):
     flats = []
     for i, entry in enumerate(entries):
         if not isinstance(entry, dict):
-            raise InputError(f"expected a table of keys, got {type(entry).__name__}", file=path, row=i + 1,
+            raise InputError(f"expected a table of keys, got {type_name(entry)}", file=path, row=i + 1,
                              label="entry")
         errors = []
         flats.append(description.read_mapping(entry, file=path, errors=errors))

@@ -16,7 +16,7 @@ import re
 import stat
 from functools import lru_cache
 
-from .errors import InputError, shown
+from .errors import InputError, printable, shown, type_name
 
 #: Longest unit text accepted ("cm^2/(V*s)" is 10 characters).
 MAX_UNIT = 64
@@ -223,6 +223,8 @@ def unit_factor(unit_text, kind):
     """
     if len(unit_text) > MAX_UNIT:
         raise ValueError(f"a unit of {len(unit_text)} characters: at most {MAX_UNIT} are accepted")
+    if not printable(unit_text):
+        raise ValueError(f"unit {shown(unit_text)} holds a control character")
     key = f"{KINDS[kind][0]}|{unit_text}"  # the SI target and the text: all a factor depends on
     known = _known_factors()
     if key in known:
@@ -297,7 +299,7 @@ def parse_quantity(value, kind, *, key=None, file=None, row=None):
 
     si, example = KINDS[kind]
     if isinstance(value, bool) or not isinstance(value, (str, int, float)):
-        raise bad(f"expected a quantity string such as \"{example}\", got {type(value).__name__}")
+        raise bad(f"expected a quantity string such as \"{example}\", got {type_name(value)}")
     if not isinstance(value, str):
         raise bad(f"a bare number needs a unit: write it as a string such as \"{example}\"")
     text = value.strip()

@@ -121,8 +121,10 @@ def test_every_accepted_range_is_in_the_readme():
     ('material = "' + "x" * 100_000 + '"\n' + EXAMPLE, "unknown material"),
     ('profile = "' + "x" * 100_000 + '"\n' + EXAMPLE, "is not one of"),
     ("p = 5\n" + EXAMPLE.replace("[p]", "[q]"), "must be a table"),
+    (EXAMPLE.replace('"2 ns"', '"2 ns\\u0000"'), "control character"),
+    (EXAMPLE.replace('"2 ns"', '"2 n\\ts"'), "control character"),
 ], ids=["1 MB unit", "1 MB key", "key with line breaks", "1 MB name", "long material", "long choice",
-        "side not a table"])
+        "side not a table", "NUL in a unit", "tab in a unit"])
 def test_long_or_odd_text_gives_one_short_line(tmp_path, text, words):
     card_refused(tmp_path, text, words)
 
@@ -184,11 +186,14 @@ LIST_CASES = {
     "NaN permittivity": (json.dumps(devices(material={"name": "silicon", "relative_permittivity": float("nan")})),
                          ": entry 2: material.relative_permittivity: expected a finite plain number"),
     "number for a quantity": (json.dumps(devices(area=2.5e-9)), ": entry 2: area: a bare number needs a unit"),
-    "integer name": (json.dumps(devices(name=7)), ": entry 2: name: expected a string, got int"),
+    "integer name": (json.dumps(devices(name=7)), ": entry 2: name: expected a string, got integer"),
     "entry not a table": ('[' + json.dumps(devices()[0]) + ', "DB"]', ": entry 2: expected a table of keys"),
     "deep nesting": ("[" * 100_000 + "]" * 100_000, "nested too deeply"),
     "huge integer": ("[" + "9" * 5000 + "]", "not valid JSON"),
     "duplicate names": (json.dumps(devices(name="DA")), ": entry 2: name: model name 'DA' is used"),
+    "side a list": (json.dumps(devices(p=[])), ": entry 2: p: [p] must be a table of keys, got list"),
+    "value a table": (json.dumps(devices(p={"doping": {"x": 1}, "thickness": "1 um"})),
+                      ": entry 2: p.doping: expected a value, got a table"),
 }
 
 
@@ -300,3 +305,9 @@ def test_name_pattern_with_names_in_the_table_is_an_error(tmp_path, form):
 
 def test_set_of_a_key_the_list_gives_is_an_error(tmp_path):
     lots_refused(tmp_path, "t.json", json.dumps(devices()), ": area: given both", args=("--set", "area=1 um^2"))
+
+
+def test_set_value_out_of_range_is_one_line_not_one_per_row(tmp_path):
+    (tmp_path / "t.csv").write_text(LOT)
+    r = run("lots", tmp_path / "t.csv", "-o", tmp_path / "out.lib", "--set", "material.ni=1e300 cm^-3")
+    refused(r, tmp_path, ["t.csv"], "--set: material.ni: ", "outside the accepted range")
