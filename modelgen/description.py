@@ -152,9 +152,14 @@ NAME_RULE = "a letter followed by letters, digits or underscores, at most 64 cha
 _NAME = re.compile(r"[A-Za-z][A-Za-z0-9_]{0,63}\Z")
 
 
+def is_name(name):
+    """True if ``name`` is a safe SPICE model name (:data:`NAME_RULE`)."""
+    return isinstance(name, str) and _NAME.match(name) is not None
+
+
 def check_name(name, *, file=None, row=None, key="name"):
     """Check that ``name`` is a safe SPICE model name; raise InputError if not."""
-    if not isinstance(name, str) or not _NAME.match(name):
+    if not is_name(name):
         shown = repr(name) if isinstance(name, str) and len(name) <= 40 else "the given value"
         raise InputError(f"{shown} is not a valid model name: it must be {NAME_RULE}",
                          file=file, row=row, key=key)
@@ -319,7 +324,7 @@ def assemble(columns, *, sources=None, rows=None, problems=None):
             raise InputError("required key is missing", file=sources[0] if n else None, key=key)
     names = tuple(columns["name"])
     fail(np.array([x is None or x == "" for x in names], bool), "name", "required key is missing")
-    bad_name = np.array([not (isinstance(x, str) and _NAME.match(x)) for x in names], bool)
+    bad_name = np.array([not is_name(x) for x in names], bool)
     if bad_name.any():
         listed = np.array([shown(x) if isinstance(x, str) and len(x) <= 40 else "the given value" for x in names],
                           dtype=object)

@@ -316,7 +316,10 @@ def _names(pattern, lines):
             raise bad(f"only a plain integer format such as {{{field}:05d}} is allowed")
         if m.group(2) and int(m.group(2)) > _NAME_WIDTH:
             raise bad(f"a width of at most {_NAME_WIDTH}")
-    return np.array([pattern.format(row=r, index=i) for i, r in enumerate(lines.tolist())], dtype=object)
+    names = np.array([pattern.format(row=r, index=i) for i, r in enumerate(lines.tolist())], dtype=object)
+    if not description.is_name(names[0]):  # the rest differ only in digits: one line, not one per row
+        raise bad(f"gives {shown(names[0])}, not {description.NAME_RULE}")
+    return names
 
 
 def _apply_options(columns, lines, path, problems, sets, name_pattern):

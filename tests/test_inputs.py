@@ -267,7 +267,8 @@ def test_directory_as_table(tmp_path):
 
 
 BAD_PATTERNS = ["{row.__class__.__mro__}", "{row[0]}", "{row:>999999999}", "{row!r}", "{name}", "{0}", "{}",
-                "D{row:x}", "D{row:{index}}", "D{row", "D" * 100 + "{row}", "D{index:099d}"]
+                "D{row:x}", "D{row:{index}}", "D{row", "D" * 100 + "{row}", "D{index:099d}", "D-{row}",
+                "{row}D", "D{{x}}{row}", "D{row:5d}"]
 
 
 @pytest.mark.parametrize("pattern", BAD_PATTERNS)
