@@ -210,9 +210,9 @@ def _read_csv(path, *, sets=None, name_pattern=None, collect=True):
         ``key -> value as text``: a constant column (``--set``); it must not
         also be a column.
     name_pattern : str, optional
-        Model names when the table has no ``name`` column: a Python format
-        string with ``{row}`` (the line number) and ``{index}`` (0-based),
-        e.g. ``"DLOT{row:05d}"``.
+        Model names for a table without a ``name`` column (with one, it is an
+        error): ``{row}`` (the line number) and ``{index}`` (0-based), each
+        with at most a plain integer format, e.g. ``"DLOT{row:05d}"``.
     collect : bool
         Collect bad cells row by row (True) or raise at the first.
 
@@ -240,10 +240,14 @@ def _read_csv(path, *, sets=None, name_pattern=None, collect=True):
     problems = Problems(n, sources=(path,) * n, rows=lines, collect=collect)
     width = len(header)
     parsed = [_header(cell, j, path) for j, cell in enumerate(header)]
-    for i in np.flatnonzero(spans[1:]).tolist():  # rare: a quoted cell holding a line break
-        j = next((j for j, c in enumerate(body[i]) if "\n" in c), 0)
-        problems.add(np.arange(n) == i, parsed[min(j, width - 1)][0],
-                     f"a line break inside a quoted cell (the row runs to line {starts[i + 1] + spans[i + 1]})")
+    spanning = np.flatnonzero(spans[1:])
+    if len(spanning):  # rare: quoted cells holding line breaks, reported under the column of the first
+        at = np.full(n, -1)
+        for i in spanning.tolist():
+            at[i] = min(next((j for j, c in enumerate(body[i]) if "\n" in c), 0), width - 1)
+        for j in np.unique(at[spanning]).tolist():
+            problems.add(at == j, parsed[j][0], "a line break inside a quoted cell (the row runs to line {e})",
+                         {"e": lines + spans[1:]})
     lens = np.fromiter(map(len, body), int, n)
     short = lens != width
     problems.add(short, "columns", "has {k} cells where the header has " + str(width), {"k": lens})
