@@ -180,3 +180,16 @@ def test_bad_headers_are_one_line(tmp_path, header, words):
     err = r.stderr.strip().splitlines()
     assert len(err) == 1 and str(f) in err[0] and words in err[0] and len(err[0]) < 400
     assert sorted(p.name for p in tmp_path.iterdir()) == ["t.csv"]
+
+
+def test_cache_in_a_folder_whose_parent_anyone_may_write_is_not_read(cache):
+    # another user could rename the cache folder away and put their own in its place
+    plant(cache, POISON)
+    os.chmod(cache.parent, 0o777)
+    try:
+        assert area_um2() == pytest.approx(100 * UM2, rel=1e-15)
+        os.chmod(cache.parent, 0o1777)  # unless the sticky bit stops them, as on /tmp
+        units._known["factors"] = None
+        assert area_um2() == 100.0  # the planted (private) file is read: the check is the parent's mode alone
+    finally:
+        os.chmod(cache.parent, 0o700)
