@@ -17,39 +17,76 @@ import numpy as np
 
 from . import materials
 from .device import Device, Side
-from .errors import InputError, Problems
+from .errors import InputError, Problems, shown, type_name
 from .textio import read_text
-from .units import parse_quantity
+from .units import KINDS, MAX_QUANTITY, parse_quantity
+
+#: Largest description file read (a description is about 1 KB).
+DESCRIPTION_LIMIT = 2**20
 
 
 @dataclass(frozen=True)
 class Key:
-    """One key of the description: its kind, default and allowed range."""
+    """One key of the description: its kind, default and allowed range.
+
+    ``plausible`` is an inclusive range of SI values a practitioner would
+    accept, written for people in ``accepted`` and justified in ``why``;
+    values outside it are refused before any physics (an absurd input gives
+    absurd numbers, never a card). ``help`` states it.
+    """
 
     kind: str            # a units kind, or "text", "number", "choice"
-    help: str
+    text: str
     default: object = None
     minimum: float | None = None     # exclusive lower bound
     at_least: float | None = None    # inclusive lower bound
     maximum: float | None = None     # exclusive upper bound
     choices: tuple = ()
+    plausible: tuple | None = None   # inclusive (low, high), SI
+    accepted: str = ""               # the plausible range as people write it
+    why: str = ""                    # why those bounds
+    infinite_ok: bool = False        # an infinite value means something (an ohmic contact)
 
+    @property
+    def help(self):
+        """What the key means and, where it has one, its accepted range and why."""
+        return self.text + (f"; accepted: {self.accepted} ({self.why})" if self.accepted else "")
+
+
+def _range(low, high, accepted, why, **kw):
+    """A key with plausibility bounds (SI ``low`` to ``high``, inclusive)."""
+    return dict(plausible=(low, high), accepted=accepted, why=why, **kw)
+
+
+_LENGTH_WHY = "thinner than a few atomic layers leaves no neutral region; thicker is more than any wafer"
+_LIFETIME = _range(1e-13, 1.0, "0.1 ps to 1 s", "shorter is no longer a carrier lifetime; the best "
+                   "float-zone silicon reaches tens of ms", minimum=0.0)
+_MOBILITY = _range(1e-4, 10.0, "1 to 1e5 cm^2/(V*s)", "from heavily compensated material to "
+                   "high-purity InSb (about 8e4 cm^2/(V*s) at room temperature)", minimum=0.0)
 
 _SIDE_KEYS = {
-    "doping": Key("concentration", "dopant density, 1e12-1e22 cm^-3 (or give resistivity)",
-                  at_least=1e18, maximum=1e28),
-    "resistivity": Key("resistivity", "resistivity; converted to doping through the mobility model",
-                       minimum=0.0),
+    "doping": Key("concentration", "dopant density (or give resistivity)", minimum=0.0,
+                  **_range(1e18, 1e28, "1e12 to 1e22 cm^-3", "purer than the purest "
+                           "float-zone silicon below; beyond the solid solubility of any dopant above")),
+    "resistivity": Key("resistivity", "resistivity; converted to doping through the mobility model", minimum=0.0,
+                       **_range(1e-7, 1e4, "1e-5 to 1e6 ohm*cm", "from degenerate doping "
+                                "(about 1e-4 ohm*cm) to beyond intrinsic silicon (about 2e5 ohm*cm)")),
     "thickness": Key("length", "metallurgical junction to contact; the depletion extent is subtracted",
-                     minimum=0.0),
-    "neutral_width": Key("length", "quasi-neutral width, given directly", minimum=0.0),
-    "lifetime": Key("time", "minority-carrier lifetime", minimum=0.0),
-    "diffusion_length": Key("length", "minority-carrier diffusion length", minimum=0.0),
-    "minority_mobility": Key("mobility", "measured minority-carrier mobility", minimum=0.0),
-    "majority_mobility": Key("mobility", "measured majority-carrier mobility", minimum=0.0),
+                     minimum=0.0, **_range(1e-9, 1e-2, "1 nm to 1 cm", _LENGTH_WHY)),
+    "neutral_width": Key("length", "quasi-neutral width, given directly", minimum=0.0,
+                         **_range(1e-9, 1e-2, "1 nm to 1 cm", _LENGTH_WHY)),
+    "lifetime": Key("time", "minority-carrier lifetime", **_LIFETIME),
+    "diffusion_length": Key("length", "minority-carrier diffusion length", minimum=0.0,
+                            **_range(1e-9, 0.1, "1 nm to 10 cm", "a 1 s lifetime at the highest "
+                                     "silicon diffusivity gives about 6 cm")),
+    "minority_mobility": Key("mobility", "measured minority-carrier mobility", **_MOBILITY),
+    "majority_mobility": Key("mobility", "measured majority-carrier mobility", **_MOBILITY),
     "surface_recombination": Key("velocity", "contact recombination velocity (absent or \"ohmic\": "
                                  "ideal ohmic contact; \"0 cm/s\": reflecting)", at_least=0.0,
-                                 default=math.inf),
+                                 default=math.inf, infinite_ok=True,
+                                 **_range(0.0, 1e7, "0 to 1e9 cm/s, or \"ohmic\"", "a hundred "
+                                          "times the thermal velocity (about 1e7 cm/s), beyond which a contact "
+                                          "is ohmic: write \"ohmic\"")),
 }
 
 #: Every key of a description, flattened with dots, with its kind and default.
@@ -58,26 +95,48 @@ KEYS = {
     "material": Key("text", "material name (known: " + ", ".join(sorted(materials.MATERIALS)) + ")",
                     default="silicon"),
     "material.name": Key("text", "material name", default="silicon"),
-    "material.ni": Key("concentration", "intrinsic density at the nominal temperature", minimum=0.0),
-    "material.bandgap": Key("energy", "band gap at the nominal temperature", minimum=0.0),
-    "material.relative_permittivity": Key("number", "relative permittivity", minimum=1.0),
-    "temperature": Key("temperature", "nominal temperature, the card's TNOM, 50-700 K", default=300.15,
-                       at_least=50.0, maximum=700.0),
-    "area": Key("area", "junction area", minimum=0.0),
-    "perimeter": Key("length", "junction perimeter (sidewall), with junction_depth", minimum=0.0),
-    "junction_depth": Key("length", "junction depth (sidewall height), with perimeter", minimum=0.0),
-    "reference_bias": Key("voltage", "bias at which the depletion edges fix the neutral widths", default=0.0),
-    "contact_resistance": Key("resistance", "added to RS", default=0.0, at_least=0.0),
+    "material.ni": Key("concentration", "intrinsic density at the nominal temperature", minimum=0.0,
+                       **_range(1e-14, 1e25, "1e-20 to 1e19 cm^-3", "from wide-gap "
+                                "semiconductors (GaN about 1e-10 cm^-3) to narrow-gap InSb (about 2e16 cm^-3)")),
+    "material.bandgap": Key("energy", "band gap at the nominal temperature", minimum=0.0,
+                            **_range(0.01, 10.0, "0.01 to 10 eV", "InSb's 0.17 eV to AlN's 6.2 eV, "
+                                     "with margin")),
+    "material.relative_permittivity": Key("number", "relative permittivity",
+                                          **_range(1.0, 1000.0, "1 to 1000", "vacuum to beyond "
+                                                   "the largest semiconductor value (PbTe, several hundred)")),
+    "temperature": Key("temperature", "nominal temperature, the card's TNOM", default=300.15,
+                       **_range(50.0, 700.0, "50 to 700 K", "the span of the material models")),
+    "area": Key("area", "junction area", minimum=0.0,
+                **_range(1e-18, 1.0, "1e-18 to 1 m^2", "1 nm^2 to 1 m^2: below a square nanometre "
+                         "there is no junction; above a square metre is more than a wafer")),
+    "perimeter": Key("length", "junction perimeter (sidewall), with junction_depth", minimum=0.0,
+                     **_range(1e-9, 1e3, "1 nm to 1 km", "a comb of 1 um fingers filling a 10 cm^2 "
+                              "die has about 1 km of edge")),
+    "junction_depth": Key("length", "junction depth (sidewall height), with perimeter", minimum=0.0,
+                          **_range(1e-9, 1e-3, "1 nm to 1 mm", "deeper than any diffusion or "
+                                   "epitaxial layer above")),
+    "reference_bias": Key("voltage", "bias at which the depletion edges fix the neutral widths", default=0.0,
+                          **_range(-1e5, 10.0, "-100 kV to 10 V", "more reverse bias than any "
+                                   "junction withstands; forward bias beyond the junction potential has no "
+                                   "depletion region")),
+    "contact_resistance": Key("resistance", "added to RS", default=0.0, at_least=0.0,
+                              **_range(0.0, 1e9, "0 to 1 Gohm", "beyond it the device is "
+                                       "an open circuit, not a diode")),
     "profile": Key("choice", "junction profile", default="abrupt", choices=("abrupt", "linear")),
-    "grading": Key("grading", "impurity gradient of a linear profile", minimum=0.0),
+    "grading": Key("grading", "impurity gradient of a linear profile", minimum=0.0,
+                   **_range(1e20, 1e38, "1e12 to 1e30 cm^-4", "from a 1e12 cm^-3 change over 1 cm "
+                            "to 1e22 cm^-3 over 1 nm")),
     "recombination_lifetime": Key("time", "lifetime for the depletion-region current "
-                                  "(default: the lighter side's)", minimum=0.0),
+                                  "(default: the lighter side's)", **_LIFETIME),
     "lifetime_temperature_exponent": Key("number", "lifetimes scale as (T/Tnom)^exponent away from the "
-                                         "nominal temperature", default=0.0),
+                                         "nominal temperature", default=0.0,
+                                         **_range(-10.0, 10.0, "-10 to 10", "published exponents "
+                                                  "lie within about -2 to +3")),
     "card.fc": Key("number", "SPICE FC, forward-bias depletion capacitance coefficient", default=0.5,
                    minimum=0.0, maximum=1.0),
     "card.breakdown_current": Key("current", "current at which BV is quoted (SPICE IBV)", default=1e-3,
-                                  minimum=0.0),
+                                  minimum=0.0, **_range(1e-15, 1e3, "1 fA to 1 kA",
+                                                        "beyond the currents a diode model is used at")),
 }
 for _side in ("p", "n"):
     for _k, _v in _SIDE_KEYS.items():
@@ -93,69 +152,130 @@ NAME_RULE = "a letter followed by letters, digits or underscores, at most 64 cha
 _NAME = re.compile(r"[A-Za-z][A-Za-z0-9_]{0,63}\Z")
 
 
+def is_name(name):
+    """True if ``name`` is a safe SPICE model name (:data:`NAME_RULE`)."""
+    return isinstance(name, str) and _NAME.match(name) is not None
+
+
 def check_name(name, *, file=None, row=None, key="name"):
     """Check that ``name`` is a safe SPICE model name; raise InputError if not."""
-    if not isinstance(name, str) or not _NAME.match(name):
+    if not is_name(name):
         shown = repr(name) if isinstance(name, str) and len(name) <= 40 else "the given value"
         raise InputError(f"{shown} is not a valid model name: it must be {NAME_RULE}",
                          file=file, row=row, key=key)
     return name
 
 
-def _flatten(table, file):
+def _flatten(table, file, errors=None):
+    """Flat dotted keys of a description given as nested dicts.
+
+    Without ``errors`` the first unknown key raises; with a list, every
+    problem is appended to it and the key is left out.
+    """
+    def problem(message, key):
+        error = InputError(message, file=file, key=key)
+        if errors is None:
+            raise error
+        errors.append(error)
+
     flat = {}
     for k, v in table.items():
         if isinstance(v, dict):
             if k not in _TABLES:
-                raise InputError(f"unknown table [{k}]; known tables: {', '.join(sorted(_TABLES))}",
-                                 file=file, key=k)
+                problem(f"unknown table [{shown(k)}]; known tables: {', '.join(sorted(_TABLES))}", k)
+                continue
             for kk, vv in v.items():
                 key = f"{k}.{kk}"
-                if isinstance(vv, dict) or key not in KEYS:
+                if key in KEYS and isinstance(vv, dict):
+                    problem("expected a value, got a table", key)
+                    continue
+                if key not in KEYS:
                     known = sorted(x.split(".", 1)[1] for x in KEYS if x.startswith(k + "."))
-                    raise InputError(f"unknown key; known keys in [{k}]: {', '.join(known)}", file=file, key=key)
+                    problem(f"unknown key; known keys in [{k}]: {', '.join(known)}", key)
+                    continue
                 flat[key] = vv
+        elif k in _TABLES - {"material"}:
+            problem(f"[{k}] must be a table of keys, got {type_name(v)}", k)
+        elif k not in KEYS:
+            known = sorted(x for x in KEYS if "." not in x)
+            problem(f"unknown key; known top-level keys: {', '.join(known)}", k)
         else:
-            if k not in KEYS or k in _TABLES - {"material"}:
-                known = sorted(x for x in KEYS if "." not in x)
-                raise InputError(f"unknown key; known top-level keys: {', '.join(known)}", file=file, key=k)
             flat[k] = v
     if "material" in flat:
         if "material.name" in flat:
-            raise InputError("give the material as a name or as a table, not both", file=file, key="material")
-        flat["material.name"] = flat.pop("material")
+            problem("give the material as a name or as a table, not both", "material")
+            del flat["material"]
+        else:
+            flat["material.name"] = flat.pop("material")
     return flat
 
 
-def convert(flat, *, file=None, row=None):
+def _convert_one(key, raw, file, row):
+    spec = KEYS[key]
+    if spec.kind == "text":
+        if not isinstance(raw, str):
+            raise InputError(f"expected a string, got {type_name(raw)}", file=file, row=row, key=key)
+        return raw
+    if spec.kind == "choice":
+        if not isinstance(raw, str) or raw not in spec.choices:
+            raise InputError(f"{shown(raw)} is not one of: {', '.join(spec.choices)}", file=file, row=row, key=key)
+        return raw
+    if spec.kind == "number":
+        x = None
+        if isinstance(raw, (int, float)) and not isinstance(raw, bool):
+            x = float(raw)
+        elif isinstance(raw, str) and len(raw) <= MAX_QUANTITY:
+            try:
+                x = float(raw)
+            except ValueError:
+                pass
+        if x is None or not math.isfinite(x):
+            raise InputError(f"expected a finite plain number, got {shown(raw)}", file=file, row=row, key=key)
+        return x
+    if key.endswith(".surface_recombination") and raw == "ohmic":
+        return math.inf
+    return parse_quantity(raw, spec.kind, key=key, file=file, row=row)
+
+
+def convert(flat, *, file=None, row=None, errors=None):
     """Convert flat raw values (strings from TOML or a table cell) to SI numbers.
 
-    Returns a dict of the keys given, each an SI float or a string.
+    Returns a dict of the keys given, each an SI float or a string. Without
+    ``errors`` the first bad value raises; with a list, every bad value's
+    error is appended to it and the key is left out.
     """
     out = {}
     for key, raw in flat.items():
-        spec = KEYS[key]
-        if spec.kind == "text":
-            if not isinstance(raw, str):
-                raise InputError(f"expected a string, got {type(raw).__name__}", file=file, row=row, key=key)
-            out[key] = raw
-        elif spec.kind == "choice":
-            if raw not in spec.choices:
-                raise InputError(f"{raw!r} is not one of: {', '.join(spec.choices)}", file=file, row=row, key=key)
-            out[key] = raw
-        elif spec.kind == "number":
-            try:
-                x = float(raw) if isinstance(raw, (str, int, float)) and not isinstance(raw, bool) else None
-            except ValueError:
-                x = None
-            if x is None or not math.isfinite(x):
-                raise InputError(f"expected a finite plain number, got {raw!r}", file=file, row=row, key=key)
-            out[key] = x
-        elif key.endswith(".surface_recombination") and raw == "ohmic":
-            out[key] = math.inf
-        else:
-            out[key] = parse_quantity(raw, spec.kind, key=key, file=file, row=row)
+        try:
+            out[key] = _convert_one(key, raw, file, row)
+        except InputError as e:
+            if errors is None:
+                raise
+            errors.append(e)
     return out
+
+
+def check_range(key, v, fail):
+    """Report through ``fail(mask, key, message, values)`` the values of ``v`` (SI, NaN: not given)
+    outside the allowed and accepted ranges of ``key``; the first broken rule of a value is reported."""
+    spec = KEYS[key]
+    given = ~np.isnan(v)
+    if spec.minimum is not None:
+        fail(given & ~(v > spec.minimum), key,
+             "must be positive" if spec.minimum == 0 else f"must be greater than {spec.minimum:g}")
+    if spec.at_least is not None:
+        fail(given & ~(v >= spec.at_least), key,
+             "must not be negative" if spec.at_least == 0 else "is below the allowed range (" + spec.help + ")")
+    if spec.maximum is not None:
+        fail(given & ~(v < spec.maximum), key, "is above the allowed range (" + spec.help + ")")
+    if spec.plausible is not None:
+        low, high = spec.plausible
+        outside = given & ~((v >= low) & (v <= high))
+        if spec.infinite_ok:
+            outside &= ~np.isposinf(v)
+        unit = KINDS[spec.kind][0] + " " if spec.kind in KINDS else ""
+        fail(outside, key, "{v:.4g} " + unit + "is outside the accepted range, " + spec.accepted
+             + " (" + spec.why + ")", {"v": v})
 
 
 def _column(columns, key, n):
@@ -190,6 +310,9 @@ def assemble(columns, *, sources=None, rows=None, problems=None):
         A required column missing (always), or, without ``problems``, the
         first row that breaks a rule, naming its file, row and key.
     """
+    if not columns:
+        raise InputError("no keys given: a description needs at least name, area, [p] and [n]",
+                         file=sources[0] if sources is not None and len(sources) else None)
     n = len(columns["name"]) if "name" in columns else len(next(iter(columns.values())))
     sources = tuple(sources) if sources is not None else (None,) * n
     if problems is None:
@@ -200,32 +323,28 @@ def assemble(columns, *, sources=None, rows=None, problems=None):
         if key not in columns:
             raise InputError("required key is missing", file=sources[0] if n else None, key=key)
     names = tuple(columns["name"])
-    bad_name = np.array([not (isinstance(x, str) and _NAME.match(x)) for x in names], bool)
+    fail(np.array([x is None or x == "" for x in names], bool), "name", "required key is missing")
+    bad_name = np.array([not is_name(x) for x in names], bool)
     if bad_name.any():
-        shown = np.array([repr(x) if isinstance(x, str) and len(x) <= 40 else "the given value" for x in names],
-                         dtype=object)
-        fail(bad_name, "name", "{x} is not a valid model name: it must be " + NAME_RULE, {"x": shown})
+        listed = np.array([shown(x) if isinstance(x, str) and len(x) <= 40 else "the given value" for x in names],
+                          dtype=object)
+        fail(bad_name, "name", "{x} is not a valid model name: it must be " + NAME_RULE, {"x": listed})
     mats = tuple(columns.get("material.name", ("silicon",) * n))
     known = sorted(materials.MATERIALS)
-    fail(~np.isin(np.asarray(mats, dtype=object), known), "material",
-         "unknown material {m!r}; known: " + ", ".join(known), {"m": np.asarray(mats, dtype=object)})
+    unknown = ~np.isin(np.asarray(mats, dtype=object), known)
+    if unknown.any():
+        fail(unknown, "material", "unknown material {m}; known: " + ", ".join(known),
+             {"m": np.array([shown(m) for m in mats], dtype=object)})
     profile = np.asarray(columns.get("profile", ("abrupt",) * n))
     linear = profile == "linear"
 
     num = {k: _column(columns, k, n) for k, spec in KEYS.items() if spec.kind not in ("text", "choice")}
-    for key, spec in KEYS.items():
-        if key not in num or key not in columns:
-            continue
-        v = num[key]
-        given = ~np.isnan(v)
-        if spec.minimum is not None:
-            fail(given & ~(v > spec.minimum), key,
-                 "must be positive" if spec.minimum == 0 else f"must be greater than {spec.minimum:g}")
-        if spec.at_least is not None:
-            fail(given & ~(v >= spec.at_least), key,
-                 "must not be negative" if spec.at_least == 0 else "is below the allowed range (" + spec.help + ")")
-        if spec.maximum is not None:
-            fail(given & ~(v < spec.maximum), key, "is above the allowed range (" + spec.help + ")")
+    for key in KEYS:
+        if key in num and key in columns:
+            check_range(key, num[key], fail)
+    for key in _REQUIRED:
+        if key in num:
+            fail(np.isnan(num[key]), key, "required key is missing")
     for side in ("p", "n"):
         for a, b in _EXACTLY_ONE:
             ga, gb = ~np.isnan(num[f"{side}.{a}"]), ~np.isnan(num[f"{side}.{b}"])
@@ -265,9 +384,14 @@ def assemble(columns, *, sources=None, rows=None, problems=None):
     )
 
 
-def read_mapping(table, *, file=None):
-    """The flat, SI-converted keys of one description given as a dict."""
-    return convert(_flatten(table, file), file=file)
+def read_mapping(table, *, file=None, errors=None):
+    """The flat, SI-converted keys of one description given as a dict.
+
+    Without ``errors`` the first problem raises; with a list, every problem
+    (an unknown key, a bad value) is appended to it and the good keys are
+    returned.
+    """
+    return convert(_flatten(table, file, errors), file=file, errors=errors)
 
 
 def from_mapping(table, *, file=None):
@@ -276,12 +400,21 @@ def from_mapping(table, *, file=None):
     return assemble({k: [v] for k, v in flat.items()}, sources=[file])
 
 
-def _read_toml(path):
-    text = read_text(path, "description file")
+def parse_toml(text, path):
+    """The TOML ``text`` of file ``path`` as dicts; InputError naming the file if it is not valid TOML."""
     try:
         return tomllib.loads(text)
-    except tomllib.TOMLDecodeError as e:
+    except RecursionError:
+        raise InputError("not valid TOML: nested too deeply", file=path) from None
+    except ValueError as e:  # TOMLDecodeError, and integers too long to convert
         raise InputError(f"not valid TOML: {e}", file=path) from None
+
+
+def _read_toml(path):
+    table = parse_toml(read_text(path, "description file", limit=DESCRIPTION_LIMIT), path)
+    if not table:
+        raise InputError("empty description: it needs at least name, area, [p] and [n]", file=path)
+    return table
 
 
 def load_with_inputs(path):

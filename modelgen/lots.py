@@ -17,11 +17,12 @@ from __future__ import annotations
 
 import csv
 import gc
+import io
 import json
 import math
 import os
 import re
-import tomllib
+import string
 from contextlib import contextmanager
 from dataclasses import dataclass
 
@@ -29,13 +30,19 @@ import numpy as np
 
 from . import description, extraction
 from .description import KEYS
-from .errors import InputError, Problems
+from .errors import InputError, Problems, shown, type_name
 from .textio import read_text
-from .units import apply_factor, parse_quantity, unit_factor
+from .units import MAX_QUANTITY, MAX_UNIT, apply_factor, parse_quantity, unit_factor
 
 #: Rows per physics chunk (bounds the breakdown solver's memory).
 CHUNK = 50000
-_HEADER = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_.]*)\s*(?:\[\s*([^\]]*?)\s*\])?\s*$")
+#: Longest key in a header cell or --set (the longest known key has 30 characters).
+MAX_KEY = 64
+#: Longest cell of a table: a number, a quantity string, a name or a word.
+MAX_CELL = MAX_QUANTITY
+#: --name formats: an optional 0 and a width of at most two digits, then an optional d ("05d", "3", "").
+_NAME_SPEC = re.compile(r"(0?)([0-9]{0,2})d?")
+_NAME_WIDTH = 20
 
 
 @contextmanager
@@ -64,6 +71,44 @@ class Table:
     problems: Problems
 
 
+def _header(cell, j, file):
+    """``(key, unit or None)`` of header cell ``cell`` (column ``j``, 0-based): ``key`` or ``key [unit]``."""
+    key, bracket, rest = cell.partition("[")
+    key, unit = key.strip(), None
+    if bracket:
+        rest = rest.rstrip()
+        if not rest.endswith("]") or "[" in rest or "]" in rest[:-1]:
+            raise InputError(f"column {j + 1}: {shown(cell)} is not 'key' or 'key [unit]'", file=file)
+        unit = rest[:-1].strip() or None
+    if not key:
+        raise InputError(f"column {j + 1}: {shown(cell)} names no key", file=file)
+    if len(key) > MAX_KEY:
+        raise InputError(f"column {j + 1}: a key of {len(key)} characters: at most {MAX_KEY} are accepted",
+                         file=file)
+    if unit is not None and len(unit) > MAX_UNIT:
+        raise InputError(f"column unit: a unit of {len(unit)} characters: at most {MAX_UNIT} are accepted",
+                         file=file, key=key)
+    return ("material.name" if key == "material" else key), unit
+
+
+def _bounded(cells, key, problems):
+    """The cells, with any longer than :data:`MAX_CELL` reported and emptied (numpy would pad every cell)."""
+    lens = np.fromiter(map(len, cells), int, len(cells))
+    long = lens > MAX_CELL
+    if not long.any():
+        return cells
+    problems.add(long, key, "a cell of {k} characters: at most " + str(MAX_CELL) + " are accepted", {"k": lens})
+    return ["" if x else c for c, x in zip(cells, long.tolist())]
+
+
+def _listed(cells, bad):
+    """Cells shown for messages, only where ``bad`` (each shortened: a cell may be long)."""
+    out = np.full(len(cells), "", dtype=object)
+    for i in np.flatnonzero(bad).tolist():
+        out[i] = shown(str(cells[i]))
+    return out
+
+
 def _convert_column(key, cells, unit, lines, file, problems):
     """SI values of one column; bad cells recorded in ``problems``."""
     spec = KEYS[key]
@@ -78,7 +123,7 @@ def _convert_column(key, cells, unit, lines, file, problems):
                     raise InputError(f"column {key!r} is a plain number and takes no unit", file=file, key=key)
                 scale, offset = (1.0, 0.0) if spec.kind == "number" else _factor(key, unit, file)
                 return apply_factor(x, scale, offset)
-    arr = np.array(cells, dtype=str)
+    arr = np.array(_bounded(cells, key, problems), dtype=str)
     empty = arr == ""
     if (arr[~empty] != np.char.strip(arr[~empty])).any():  # rare: cells padded with spaces
         arr = np.char.strip(arr)
@@ -90,7 +135,8 @@ def _convert_column(key, cells, unit, lines, file, problems):
         vals = arr.astype(object)
         if spec.kind == "choice":
             bad = ~empty & ~np.isin(vals, spec.choices)
-            problems.add(bad, key, "{v!r} is not one of: " + ", ".join(spec.choices), {"v": vals})
+            if bad.any():
+                problems.add(bad, key, "{v} is not one of: " + ", ".join(spec.choices), {"v": _listed(vals, bad)})
         if spec.default is not None:
             vals = np.where(empty, spec.default, vals)
         elif empty.any():
@@ -112,8 +158,8 @@ def _convert_column(key, cells, unit, lines, file, problems):
             ohmic = np.char.lower(np.char.strip(text)) == "ohmic"
             bad &= ~ohmic
             x = np.where(ohmic, np.inf, x)
-        if bad.any():  # str, not numpy's str_, so that the message shows 'abc'
-            problems.add(bad, key, "not a finite number: {v!r}", {"v": cells.astype(object)})
+        if bad.any():
+            problems.add(bad, key, "not a finite number: {v}", {"v": _listed(cells, bad)})
         with np.errstate(invalid="ignore"):
             out = np.where(np.isinf(x), x, apply_factor(x, scale, offset))
         out[bad] = np.nan
@@ -164,9 +210,9 @@ def _read_csv(path, *, sets=None, name_pattern=None, collect=True):
         ``key -> value as text``: a constant column (``--set``); it must not
         also be a column.
     name_pattern : str, optional
-        Model names when the table has no ``name`` column: a Python format
-        string with ``{row}`` (the line number) and ``{index}`` (0-based),
-        e.g. ``"DLOT{row:05d}"``.
+        Model names for a table without a ``name`` column (with one, it is an
+        error): ``{row}`` (the line number) and ``{index}`` (0-based), each
+        with at most a plain integer format, e.g. ``"DLOT{row:05d}"``.
     collect : bool
         Collect bad cells row by row (True) or raise at the first.
 
@@ -181,24 +227,27 @@ def _read_csv(path, *, sets=None, name_pattern=None, collect=True):
         or repeated column, a unit that does not fit its column.
     """
     path = str(path)
-    text = read_text(path, "table")
-    raw = text.splitlines()
-    if not raw:
-        raise InputError("empty table: the first line must name the columns", file=path)
-    numbered = [(k + 1, ln) for k, ln in enumerate(raw) if ln.strip(" ,\t")]  # blank lines are skipped
-    if '"' in text:
-        split = list(csv.reader([ln for _, ln in numbered]))
-    else:  # no quoting anywhere: a plain split is the same and faster
-        split = [ln.split(",") for _, ln in numbered]
-    if not numbered or numbered[0][0] != 1:
+    records, starts, spans = _records(read_text(path, "table"), path)
+    if not records or starts[0] != 1:
         raise InputError("the first line must name the columns", file=path)
-    header, body = split[0], split[1:]
-    lines = np.array([k for k, _ in numbered[1:]], dtype=int)
+    if spans[0]:
+        raise InputError("the header has a line break inside a quoted cell", file=path)
+    header, body = records[0], records[1:]
+    lines = np.array(starts[1:], dtype=int)
     n = len(body)
     if n == 0:
         raise InputError("the table has no rows", file=path)
     problems = Problems(n, sources=(path,) * n, rows=lines, collect=collect)
     width = len(header)
+    parsed = [_header(cell, j, path) for j, cell in enumerate(header)]
+    spanning = np.flatnonzero(spans[1:])
+    if len(spanning):  # rare: quoted cells holding line breaks, reported under the column of the first
+        at = np.full(n, -1)
+        for i in spanning.tolist():
+            at[i] = min(next((j for j, c in enumerate(body[i]) if "\n" in c), 0), width - 1)
+        for j in np.unique(at[spanning]).tolist():
+            problems.add(at == j, parsed[j][0], "a line break inside a quoted cell (the row runs to line {e})",
+                         {"e": lines + spans[1:]})
     lens = np.fromiter(map(len, body), int, n)
     short = lens != width
     problems.add(short, "columns", "has {k} cells where the header has " + str(width), {"k": lens})
@@ -207,90 +256,169 @@ def _read_csv(path, *, sets=None, name_pattern=None, collect=True):
         body[i] = r + [""] * (width - len(r)) if len(r) < width else r[:width]
     cols = list(zip(*body)) if n else [()] * width
     columns = {}
-    for j, cell in enumerate(header):
-        m = _HEADER.match(cell)
-        if not m:
-            raise InputError(f"column {j + 1}: {cell!r} is not 'key' or 'key [unit]'", file=path)
-        key, unit = m.group(1), m.group(2)
-        if key == "material":
-            key = "material.name"
+    for j, (key, unit) in enumerate(parsed):
         if key not in KEYS or key in ("material",):
             raise InputError(f"unknown column; known keys: {', '.join(sorted(k for k in KEYS if k != 'material'))}",
                              file=path, key=key)
         if key in columns:
             raise InputError("column given twice", file=path, key=key)
-        columns[key] = _convert_column(key, cols[j], unit or None, lines, path, problems)
+        columns[key] = _convert_column(key, cols[j], unit, lines, path, problems)
+    _apply_options(columns, lines, path, problems, sets, name_pattern)
+    return Table(columns=columns, lines=lines, file=path, problems=problems)
+
+
+def _records(text, path):
+    """The non-blank records of CSV ``text``, the line each starts on, and how many more lines each spans.
+
+    Line numbers are those an editor shows, also after a quoted cell that
+    holds a line break.
+    """
+    if "\r" in text:
+        text = text.replace("\r\n", "\n").replace("\r", "\n")
+    numbered = [(k + 1, ln) for k, ln in enumerate(text.split("\n")) if ln.strip(" ,\t")]
+    starts, one_line = [k for k, _ in numbered], np.zeros(len(numbered), int)
+    if '"' not in text:  # no quoting anywhere: a plain split is the same and faster
+        return [ln.split(",") for _, ln in numbered], starts, one_line
+    try:
+        records = list(csv.reader([ln for _, ln in numbered]))
+    except csv.Error:
+        records = None  # the careful reading below says where
+    if records is not None and len(records) == len(numbered):  # no quoted cell holds a line break
+        return records, starts, one_line
+    records, starts, spans = [], [], []
+    reader = csv.reader(io.StringIO(text, newline="\n"))
+    done = 0
+    try:
+        for record in reader:
+            first, done = done + 1, reader.line_num
+            if "".join(record).strip(" \t"):
+                records.append(record)
+                starts.append(first)
+                spans.append(done - first)
+    except csv.Error as e:
+        raise InputError(f"not valid CSV: {e}", file=path, row=reader.line_num) from None
+    return records, starts, np.array(spans, int)
+
+
+def _names(pattern, lines):
+    """Model names from a --name pattern: only {row} and {index}, each with a plain integer format."""
+    def bad(why):
+        return InputError(f"{shown(pattern)}: {why}; write e.g. \"DLOT{{row:05d}}\" ({{row}} the line or "
+                          f"entry number, {{index}} the 0-based row)", key="--name")
+
+    if len(pattern) > MAX_KEY:
+        raise bad(f"longer than {MAX_KEY} characters")
+    try:
+        fields = [f for f in string.Formatter().parse(pattern) if f[1] is not None]
+    except ValueError as e:
+        raise bad(str(e)) from None
+    for _, field, spec, conversion in fields:
+        if field not in ("row", "index"):
+            raise bad(f"{{{shown(field)[1:-1]}}} is not a field: only {{row}} and {{index}}")
+        m = _NAME_SPEC.fullmatch(spec or "")
+        if conversion is not None or m is None:
+            raise bad(f"only a plain integer format such as {{{field}:05d}} is allowed")
+        if m.group(2) and int(m.group(2)) > _NAME_WIDTH:
+            raise bad(f"a width of at most {_NAME_WIDTH}")
+    names = np.array([pattern.format(row=r, index=i) for i, r in enumerate(lines.tolist())], dtype=object)
+    if not description.is_name(names[0]):  # the rest differ only in digits: one line, not one per row
+        raise bad(f"gives {shown(names[0])}, not {description.NAME_RULE}")
+    return names
+
+
+def _apply_options(columns, lines, path, problems, sets, name_pattern):
+    """Add the --set columns and the --name names to a table's columns; check names are unique."""
+    n = len(lines)
     for key, value in (sets or {}).items():
         if key == "material":
             key = "material.name"
         if key not in KEYS:
             raise InputError("unknown key in --set", file=path, key=key)
         if key in columns:
-            raise InputError("given both as a column and with --set", file=path, key=key)
+            raise InputError("given both in the table and with --set", file=path, key=key)
         v = description.convert({key: value}, file="--set")[key]
+        if not isinstance(v, str):  # a constant out of range is one error, not one per row
+            description.check_range(key, np.array([v]), Problems(1, sources=["--set"]).add)
         columns[key] = np.array([v] * n, dtype=object if isinstance(v, str) else float)
+    if name_pattern is not None:
+        if "name" in columns:
+            raise InputError("the table names its devices already: give --name only for a table without names",
+                             file=path, key="--name")
+        columns["name"] = _names(name_pattern, lines)
     if "name" not in columns:
-        if not name_pattern:
-            raise InputError("no name column: add one, or give --name PATTERN (e.g. \"DLOT{row:05d}\")",
-                             file=path, key="name")
-        try:
-            columns["name"] = np.array([name_pattern.format(row=int(r), index=i) for i, r in enumerate(lines)],
-                                       dtype=object)
-        except (KeyError, IndexError, ValueError) as e:
-            raise InputError(f"--name pattern: {e}; use {{row}} and {{index}}", file=path, key="name") from None
+        raise InputError("no names: add a name column (or a name to each entry), or give --name PATTERN "
+                         "(e.g. \"DLOT{row:05d}\")", file=path, key="name")
     names = columns["name"]
     upper = np.array([str(x).upper() for x in names], dtype=object)
     _, first, counts = np.unique(upper, return_index=True, return_counts=True)
     dup = np.ones(n, bool)
     dup[first] = False
-    dup &= np.isin(upper, upper[first][counts > 1])
-    problems.add(dup, "name", "model name {x!r} is used by an earlier row", {"x": names})
-    return Table(columns=columns, lines=lines, file=path, problems=problems)
+    dup &= np.isin(upper, upper[first][counts > 1]) & (upper != "")
+    if dup.any():
+        problems.add(dup, "name", "model name {x} is used by an earlier row", {"x": _listed(names, dup)})
 
 
-def read_list(path, *, collect=True):
+def read_list(path, *, sets=None, name_pattern=None, collect=True):
     """A TOML (``[[device]]`` tables) or JSON (a list of objects) lot file.
 
     Each entry is a device description as in a single TOML file; values are
-    quantity strings, parsed one by one.
+    quantity strings, parsed one by one. Problems name the entry (1-based)
+    and the key at fault. ``sets`` and ``name_pattern`` are as for
+    :func:`read_csv` ({row} is the entry's number).
     """
     path = str(path)
     text = read_text(path, "table")
-    try:
-        if path.lower().endswith(".json"):
+    if path.lower().endswith(".json"):
+        try:
             entries = json.loads(text)
-        else:
-            entries = tomllib.loads(text).get("device")
-    except (json.JSONDecodeError, tomllib.TOMLDecodeError) as e:
-        raise InputError(f"cannot parse: {e}", file=path) from None
-    if not isinstance(entries, list) or not entries or not all(isinstance(e, dict) for e in entries):
+        except RecursionError:
+            raise InputError("not valid JSON: nested too deeply", file=path) from None
+        except ValueError as e:  # JSONDecodeError, and integers too long to convert
+            raise InputError(f"not valid JSON: {e}", file=path) from None
+    else:
+        doc = description.parse_toml(text, path)
+        for key in doc:
+            if key != "device":
+                raise InputError("unknown top-level key: a lot file holds [[device]] tables only",
+                                 file=path, key=key)
+        entries = doc.get("device")
+    if not isinstance(entries, list) or not entries:
         raise InputError("expected a list of device tables ([[device]] in TOML, a JSON list of objects)",
                          file=path)
     n = len(entries)
-    problems = Problems(n, sources=(path,) * n, rows=np.arange(1, n + 1), collect=collect)
+    lines = np.arange(1, n + 1)
+    problems = Problems(n, sources=(path,) * n, rows=lines, collect=collect, label="entry")
+    found = {}  # key -> (mask, messages): one problem per key for the whole list
     flats = []
     for i, entry in enumerate(entries):
-        try:
-            flats.append(description.read_mapping(entry, file=path))
-        except InputError as e:
-            mask = np.arange(n) == i
-            problems.add(mask, e.key, e.message)
-            flats.append({"name": f"BAD{i}"})
-    keys = sorted({k for f in flats for k in f})
+        if not isinstance(entry, dict):
+            raise InputError(f"expected a table of keys, got {type_name(entry)}", file=path, row=i + 1,
+                             label="entry")
+        errors = []
+        flats.append(description.read_mapping(entry, file=path, errors=errors))
+        for e in errors:
+            if not collect:
+                raise InputError(e.message, file=path, row=i + 1, key=e.key, label="entry")
+            mask, messages = found.setdefault(e.key, (np.zeros(n, bool), np.full(n, "", dtype=object)))
+            if not mask[i]:
+                mask[i], messages[i] = True, e.message
+    for key, (mask, messages) in found.items():
+        problems.add(mask, key, "{m}", {"m": messages})
     columns = {}
-    for k in keys:
+    for k in sorted({k for f in flats for k in f}):
         if KEYS[k].kind in ("text", "choice"):
             default = KEYS[k].default if KEYS[k].default is not None else ""
             columns[k] = np.array([f.get(k, default) for f in flats], dtype=object)
         else:
             columns[k] = np.array([f.get(k, np.nan) for f in flats], dtype=float)
-    return Table(columns=columns, lines=np.arange(1, n + 1), file=path, problems=problems)
+    _apply_options(columns, lines, path, problems, sets, name_pattern)
+    columns.setdefault("area", np.full(n, np.nan))  # so each entry without one is named, not the whole file
+    return Table(columns=columns, lines=lines, file=path, problems=problems)
 
 
 def read(path, **kw):
     """:func:`read_csv` or :func:`read_list` by the file's extension."""
     if str(path).lower().endswith((".toml", ".json")):
-        kw.pop("sets", None), kw.pop("name_pattern", None)
         return read_list(path, **kw)
     return read_csv(path, **kw)
 
