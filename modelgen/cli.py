@@ -102,7 +102,7 @@ def main():
 
 @main.command("card")
 @click.argument("device_files", metavar="DEVICE.toml...", nargs=-1, required=True,
-                type=click.Path(dir_okay=False))
+                type=click.Path())
 @click.option("-o", "--output", type=click.Path(dir_okay=False, writable=True),
               help="Write to this file (atomically: a temporary file, then a rename) instead of stdout.")
 @click.option("--format", "fmt", type=click.Choice(["card", "json"]), default="card", show_default=True,
@@ -215,7 +215,7 @@ def _temperature_c(text, key):
 
 
 @main.command("corners")
-@click.argument("device_file", metavar="DEVICE.toml", type=click.Path(dir_okay=False))
+@click.argument("device_file", metavar="DEVICE.toml", type=click.Path())
 @click.option("--at", "at", multiple=True, metavar="TEMP",
               help="A corner temperature; degC unless a unit is given (\"300 K\"). Repeat for more. With a "
                    "range, the corners are the union of both.")

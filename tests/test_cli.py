@@ -133,3 +133,10 @@ def test_written_files_get_ordinary_permissions(tmp_path):
     mask = os.umask(0)
     os.umask(mask)
     assert (os.stat(out).st_mode & 0o777) == (0o666 & ~mask)
+
+
+def test_a_directory_as_the_input_is_one_line(tmp_path):
+    for args in (["card", str(tmp_path)], ["corners", str(tmp_path)]):
+        r = run(*args)
+        assert r.exit_code == 2
+        assert r.stderr.count("\n") == 1 and "is a directory" in r.stderr and "Usage" not in r.stderr
