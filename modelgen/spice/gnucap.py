@@ -65,13 +65,13 @@ from __future__ import annotations
 import math
 import re
 import shutil
-import subprocess
 import tempfile
 from pathlib import Path
 
 import numpy as np
 
 from ..cards import reader
+from .process import SimulatorError, run
 
 __all__ = ["available", "simulate", "AC_FREQUENCY", "DC_SHORT", "AC_SHORT", "NUMDGT"]
 
@@ -87,6 +87,7 @@ _PRINTED = re.compile(r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?(?:Meg|[fpnumKG
                       r"|\?\?|NA|[-+]?Inf|NaN|[-+]?Over")
 _PRINTED_SCALE = {"f": 1e-15, "p": 1e-12, "n": 1e-9, "u": 1e-6, "m": 1e-3,
                   "K": 1e3, "Meg": 1e6, "G": 1e9, "T": 1e12}
+_COMPLAINT = re.compile(r"^\s*\^|can't|error|bad |\? ", re.IGNORECASE)  # a gnucap complaint line
 _INSTANCE = re.compile(r"\b[XC][IQ](\d+)_\d+\b", re.IGNORECASE)  # our subcircuits and their instances
 _BANNER = ("Gnucap ", "Never trust", "Copyright", "Gnucap comes", "This is free software",
            "to redistribute", "the GNU General", "See the file", "main version:",
@@ -152,9 +153,9 @@ def simulate(library_text: str, names: list[str], dc_volts, cap_volts, *, temper
     ValueError
         A name is missing from ``library_text``, is not a ``D`` model, or is
         given twice.
-    RuntimeError
-        Gnucap is missing, fails, times out or prints no results; the message
-        carries its output.
+    modelgen.spice.process.SimulatorError
+        Gnucap is missing, fails, times out or prints no results (a
+        RuntimeError): one line, with gnucap's output in its ``output``.
     """
     names = list(names)
     dc = np.atleast_1d(np.asarray(dc_volts, dtype=float)).ravel()
@@ -202,22 +203,14 @@ def simulate(library_text: str, names: list[str], dc_volts, cap_volts, *, temper
 def _run(netlist: str, *, timeout: float) -> str:
     exe = shutil.which(GNUCAP)
     if exe is None:
-        raise RuntimeError("gnucap is not on PATH (Debian package: gnucap)")
+        raise SimulatorError("gnucap is not on PATH (Debian package: gnucap)")
     with tempfile.TemporaryDirectory(prefix="modelgen-gnucap-") as tmp:
         path = Path(tmp) / "run.ckt"
         path.write_text(netlist)
-        try:
-            proc = subprocess.run([exe, "-b", str(path)], capture_output=True, text=True,
-                                  stdin=subprocess.DEVNULL, cwd=tmp, timeout=timeout)
-        except subprocess.TimeoutExpired as exc:
-            out = (exc.stdout or b"")
-            out = out.decode(errors="replace") if isinstance(out, bytes) else out
-            raise RuntimeError(f"gnucap did not finish in {timeout} s; its output:\n{out}") from None
-        except OSError as exc:
-            raise RuntimeError(f"gnucap could not be started: {exc}") from None
-    output = proc.stdout + proc.stderr
-    if proc.returncode != 0:
-        raise RuntimeError(f"gnucap exited with status {proc.returncode}; its output:\n{output}")
+        code, output = run([exe, "-b", str(path)], cwd=tmp, timeout=timeout, what="gnucap")
+    if code != 0:
+        why = f"killed by signal {-code}" if code < 0 else f"exit status {code}"
+        raise SimulatorError(f"gnucap failed ({why})", output=output)
     return output
 
 
@@ -307,7 +300,9 @@ def _block(blocks, labels, output) -> np.ndarray:
         if [h.lower() for h in header[-len(want):]] == want and len(tokens) == len(want) + 1:
             return np.array([_value(t) for t in tokens[1:]])
     analysis = ".ac" if labels[0].startswith("v") else ".op"
-    raise RuntimeError(f"gnucap printed no {analysis} results; its output:\n" + output)
+    problems = list(dict.fromkeys(ln.strip().lstrip("^ ") for ln in output.splitlines() if _COMPLAINT.search(ln)))
+    detail = f": {'; '.join(problems[:3])[:300]}" if problems else ""
+    raise SimulatorError(f"gnucap printed no {analysis} results{detail}", output=output)
 
 
 def _messages(output: str, names: list[str], library_names: list[str]) -> list[list[str]]:
