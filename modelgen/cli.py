@@ -224,8 +224,8 @@ def check_command(card_file, simulator, temperature, sample_size, timeout):
     bad = [o for o in outcomes if not o.ok]
     used = [s for s in check.PACKAGES if any(o.simulator == s for o in outcomes)]
     if report.checked < report.cards:
-        click.echo(f"sample: {report.checked} of {report.cards} cards checked (every "
-                   f"{report.cards / report.checked:.3g}th, spread evenly through the file)")
+        click.echo(f"sample: {report.checked} of {report.cards} cards checked (one in every "
+                   f"{round(report.cards / report.checked, 1):g}, spread evenly through the file)")
     at = "each card's TNOM" if temperature is None else f"{temperature:g} degC"
     click.echo(f"{len(outcomes) - len(bad)} of {len(outcomes)} checks passed: {', '.join(used)} against "
                f"modelgen's evaluator of its equations for the same card, at {at} "

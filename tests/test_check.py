@@ -90,6 +90,37 @@ def test_spice3_card_runs_in_both_and_gnucap_card_in_gnucap(tmp_path):
     assert " gnucap " in r.stdout and " ngspice " not in r.stdout
 
 
+def _written_by_modelgen(tmp_path, dialect):
+    """Every kind of file modelgen writes in ``dialect``: cards, corners, per-corner and lot libraries."""
+    examples = sorted(str(p) for p in (ROOT / "examples").glob("*.toml"))
+    runs = {f"card_{Path(e).stem}": ["card", e] for e in examples}
+    runs["library"] = ["card", *examples]
+    runs["corners"] = ["corners", str(ROOT / "examples" / "photodiode.toml")]
+    runs["per_corner"] = ["corners", str(ROOT / "examples" / "switching_diode.toml"), "--per-corner"]
+    runs["lot"] = ["lots", str(ROOT / "examples" / "lot_table.csv")]
+    if DIALECTS[dialect].sections:
+        runs["lot_corners"] = ["lots", str(ROOT / "examples" / "lot_table.csv"), "--corners", "5,50,95"]
+    files = []
+    for name, args in runs.items():
+        out = tmp_path / f"{name}.lib"
+        quiet = ["-q"] if args[0] in ("card", "corners") else []
+        r = CliRunner().invoke(main, [*args, "--dialect", dialect, "-o", str(out), *quiet])
+        assert r.exit_code == 0, (name, r.output)
+        files.append(out)
+    return files
+
+
+@pytest.mark.parametrize("dialect", sorted(DIALECTS))
+def test_every_file_modelgen_writes_passes_check_with_no_options(tmp_path, dialect):
+    for simulator in {s for d in DIALECTS.values() for s in d.simulators}:
+        need(simulator)
+    for f in _written_by_modelgen(tmp_path, dialect):
+        r = run_check(f)
+        assert r.exit_code == 0, (f.name, r.output)
+        used = {ln.split()[2] for ln in r.stdout.splitlines()[1:] if ln.split()[2:3] and ln.split()[-1] == "ok"}
+        assert used == set(DIALECTS[dialect].simulators), (f.name, r.stdout)
+
+
 def _fake_simulator(tmp_path, monkeypatch, body):
     """An `ngspice` on PATH that runs the shell `body` (real processes, no simulator needed)."""
     bin_dir = tmp_path / "bin"

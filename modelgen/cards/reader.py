@@ -170,20 +170,28 @@ def parse_number(text, *, file=None, line=None, key=None):
         raise CardSyntaxError(why, file=file, row=line, key=key)
     mantissa, sign, digits, letters = m.groups()
     scale = "1"
-    upper = letters.upper()
-    for suffix in _SUFFIXES:
-        if upper.startswith(suffix):
-            scale = SCALE[suffix]
-            break
-    # exact decimal product (enough digits for the mantissa's and the scale's),
-    # then one correct rounding to a double
-    ctx = decimal.Context(prec=len(mantissa) + 8, Emax=decimal.MAX_EMAX, Emin=decimal.MIN_EMIN)
-    try:
-        exact = decimal.Decimal(f"{mantissa}e{sign or ''}{digits or '0'}")
-        value = float(ctx.multiply(exact, decimal.Decimal(scale)))
-    except (ArithmeticError, ValueError):
-        exact, value = None, math.inf
-    if not math.isfinite(value) or (value == 0.0 and exact != 0):
+    if letters:
+        upper = letters.upper()
+        for suffix in _SUFFIXES:
+            if upper.startswith(suffix):
+                scale = SCALE[suffix]
+                break
+    literal = f"{mantissa}e{sign or ''}{digits or '0'}"
+    if scale == "1":
+        # no scale factor: float() of a decimal literal is already the correctly rounded double
+        value = float(literal)
+        nonzero = mantissa.lstrip("+-").replace(".", "").strip("0") != ""
+    else:
+        # exact decimal product (enough digits for the mantissa's and the scale's),
+        # then one correct rounding to a double
+        ctx = decimal.Context(prec=len(mantissa) + 8, Emax=decimal.MAX_EMAX, Emin=decimal.MIN_EMIN)
+        try:
+            exact = decimal.Decimal(literal)
+            value = float(ctx.multiply(exact, decimal.Decimal(scale)))
+            nonzero = exact != 0
+        except (ArithmeticError, ValueError):
+            nonzero, value = True, math.inf
+    if not math.isfinite(value) or (value == 0.0 and nonzero):
         raise CardSyntaxError(f"{s!r} is beyond the range of a double", file=file, row=line, key=key)
     return value
 

@@ -150,7 +150,10 @@ PLAUSIBLE = {
     "FCS": _FORWARD_FRACTION,
     "PJ": (0.0, True, 1e6, True, "", "a perimeter factor is not negative. It counts devices"),
     "AREA": (0.0, False, 1e6, True, "", "an area factor is positive. It counts devices"),
-    "TCV": _COEFFICIENT,
+    "TCV": (-100.0, True, 100.0, True, "V/K",
+            "the temperature coefficient of BV is at most 100 V/K in size. Avalanche breakdown moves "
+            "by about 0.1 %/K of BV (Sze & Ng 2007, sec. 2.4.3) and BV reaches kilovolts; a reach-"
+            "through fit can be negative"),
     "TRS1": _COEFFICIENT,
     "TRS2": _COEFFICIENT,
     "TTT1": _COEFFICIENT,
