@@ -21,8 +21,10 @@ import sys
 import time
 from pathlib import Path
 
+import numpy as np
 import pytest
 from click.testing import CliRunner
+from hypothesis import given, settings, strategies as st
 
 from modelgen.cards import DIALECTS, reader
 from modelgen.cli import main
@@ -390,3 +392,25 @@ def test_a_long_name_or_line_is_refused(tmp_path):
         reader.read_cards(".model D" + "N" * 199 + " D (IS=1e-15)\n")
     with pytest.raises(reader.CardSyntaxError, match="control or format character"):
         reader.read_cards(".model D\u202eX D (IS=1e-15)\n")
+
+
+@pytest.mark.filterwarnings("error")
+@settings(max_examples=150, deadline=None)
+@given(st.data())
+def test_any_plausible_card_gives_finite_references_or_one_error(data):
+    # the plausible ranges are the contract: inside them the evaluator must not raise or warn,
+    # at the card's TNOM and at both ends of the temperature range a check accepts
+    parts = {}
+    for key in data.draw(st.lists(st.sampled_from(sorted(check.PLAUSIBLE)), min_size=1, unique=True)):
+        lo, lo_in, hi, hi_in, _, _ = check.PLAUSIBLE[key]
+        parts[key] = data.draw(st.floats(lo, hi, exclude_min=not lo_in, exclude_max=not hi_in))
+    text = ".model DX D (" + " ".join(f"{k}={v!r}" for k, v in parts.items()) + ")\n"
+    card = check.diode_cards(text)[0]
+    simulator = data.draw(st.sampled_from(sorted(check.PACKAGES)))
+    for t in (card.params.get("TNOM", 27.0), *check.TEMPERATURE_RANGE):
+        try:
+            i_ref, c_ref = check._reference(card, simulator, t, "x.lib")
+        except reader.CardSyntaxError as e:
+            assert "non-finite" in str(e) and "x.lib" in str(e)
+        else:
+            assert np.all(np.isfinite(i_ref)) and np.all(np.isfinite(c_ref))

@@ -149,7 +149,8 @@ PLAUSIBLE = {
     "MJSW": _GRADING,
     "FCS": _FORWARD_FRACTION,
     "PJ": (0.0, True, 1e6, True, "", "a perimeter factor is not negative. It counts devices"),
-    "AREA": (0.0, False, 1e6, True, "", "an area factor is positive. It counts devices"),
+    "AREA": (1e-6, True, 1e6, True, "", "an area factor lies between 1e-6 and 1e6. It scales a device "
+             "(an instance parameter in SPICE; on a card the simulator warns)"),
     "TCV": (-100.0, True, 100.0, True, "V/K",
             "the temperature coefficient of BV is at most 100 V/K in size. Avalanche breakdown moves "
             "by about 0.1 %/K of BV (Sze & Ng 2007, sec. 2.4.3) and BV reaches kilovolts; a reach-"
@@ -334,7 +335,9 @@ def _user_names(messages, labels, cards):
 
 def _reference(card, simulator, temperature, file):
     """The evaluator's DC current and capacitance for one card [A], [F]."""
-    params = dict(card.params)
+    # SPICE's defaults for what the evaluator's temperature law needs and its DEFAULTS lack
+    # (ngspice manual, diode model table: EG 1.11 eV, XTI 3; gnucap's d_diode.model the same)
+    params = {"EG": 1.11, "XTI": 3.0, **card.params}
     g = _GMIN_NGSPICE if simulator == "ngspice" else None
     with np.errstate(all="ignore"):
         i_ref, _ = evaluator.dc_current(params, DC_VOLTS, simulator, gmin=g, temperature_c=temperature)

@@ -83,7 +83,7 @@ NUMDGT = 15  # digits gnucap prints; its own formatter is good to about 1e-11 re
 
 _TITLE = "modelgen gnucap batch run"
 # A value as gnucap prints it: mantissa, optional exponent, optional scale letter ("Meg" for 1e6).
-_PRINTED = re.compile(r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?(?:Meg|[fpnumKGT])?"
+_PRINTED = re.compile(r"[-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?(?:Meg|[fpnumKGT])?"
                       r"|\?\?|NA|[-+]?Inf|NaN|[-+]?Over")
 _PRINTED_SCALE = {"f": 1e-15, "p": 1e-12, "n": 1e-9, "u": 1e-6, "m": 1e-3,
                   "K": 1e3, "Meg": 1e6, "G": 1e9, "T": 1e12}

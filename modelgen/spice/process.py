@@ -72,7 +72,10 @@ def _child_setup(parent):
 
 def _kill_group(proc):
     try:
-        os.killpg(proc.pid, signal.SIGKILL)
+        if os.name == "posix":
+            os.killpg(proc.pid, signal.SIGKILL)
+        else:  # pragma: no cover - no process groups to kill
+            proc.kill()
     except (ProcessLookupError, PermissionError):
         pass
     try:
@@ -100,9 +103,9 @@ def run(argv, *, cwd, timeout, what):
         The program cannot be started or does not finish within ``timeout``.
     """
     try:
+        posix = {"start_new_session": True, "preexec_fn": _child_setup(os.getpid())} if os.name == "posix" else {}
         proc = subprocess.Popen(argv, cwd=cwd, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
-                                stderr=subprocess.STDOUT, start_new_session=True,
-                                preexec_fn=_child_setup(os.getpid()))
+                                stderr=subprocess.STDOUT, **posix)
     except OSError as e:
         raise SimulatorError(f"{what} could not be started: {e.strerror or e}") from None
     try:
