@@ -414,3 +414,14 @@ def test_any_plausible_card_gives_finite_references_or_one_error(data):
             assert "non-finite" in str(e) and "x.lib" in str(e)
         else:
             assert np.all(np.isfinite(i_ref)) and np.all(np.isfinite(c_ref))
+
+
+@pytest.mark.parametrize("form", range(len(HOSTILE)))
+def test_the_runners_drop_comment_lines_too(form):
+    # defence in depth for callers of the runners that pass text of their own
+    from modelgen.spice import gnucap, ngspice
+    text = HOSTILE[form].format(m="/nonexistent/marker")
+    deck = ngspice._deck(text, [], check.DC_VOLTS, [], 27.0, 1e-12, "dc", "ac")
+    netlist, _, _ = gnucap._netlist(text, [], check.DC_VOLTS, check.CAP_VOLTS, 27.0, None)
+    for out in (deck, netlist):
+        assert "touch" not in out and "*#" not in out.replace(".model *#", "") and "*>" not in out

@@ -71,7 +71,7 @@ from pathlib import Path
 import numpy as np
 
 from ..cards import reader
-from .process import SimulatorError, run
+from .process import SimulatorError, run, without_comments
 
 __all__ = ["available", "simulate", "AC_FREQUENCY", "DC_SHORT", "AC_SHORT", "NUMDGT"]
 
@@ -112,9 +112,9 @@ def simulate(library_text: str, names: list[str], dc_volts, cap_volts, *, temper
     Parameters
     ----------
     library_text : str
-        ``.model NAME D (...)`` cards with ``*`` comments and ``+`` continuation
-        lines, passed to gnucap as they are (lines that are just ``.end`` are
-        dropped).
+        ``.model NAME D (...)`` cards with ``+`` continuation lines, passed to
+        gnucap without comment lines (any of which could be a ``*>`` command)
+        and without lines that are just ``.end``.
     names : list of str
         Models to simulate, one diode per model and bias.  Gnucap matches model
         names without regard to case; so does this function.
@@ -226,7 +226,7 @@ def _netlist(library_text, names, dc, cv, temperature_c, gmin):
     prints them as ``XI0_3.D1``.  (It has no probe for a node inside a
     subcircuit; the source's own ``v`` is the same voltage.)
     """
-    library = "\n".join(line for line in library_text.splitlines()
+    library = "\n".join(line for line in without_comments(library_text).split("\n")
                         if line.strip().lower() != ".end")
     lines = [_TITLE, library, "* one diode and its source per model and bias, each in a subcircuit"]
     op_probes, op_labels, ac_probes, ac_labels = [], [], [], []

@@ -19,7 +19,7 @@ import tempfile
 
 import numpy as np
 
-from .process import SimulatorError, run
+from .process import SimulatorError, run, without_comments
 
 #: AC analysis frequency for the capacitance [Hz].
 FREQUENCY = 1e6
@@ -32,7 +32,7 @@ def available():
 
 
 def _deck(library_text, names, dc_volts, cap_volts, temperature_c, gmin, out_dc, out_ac):
-    lines = ["* modelgen check deck", library_text.rstrip("\n"), "VSWEEP sweep 0 DC 0"]
+    lines = ["* modelgen check deck", without_comments(library_text), "VSWEEP sweep 0 DC 0"]
     for k, name in enumerate(names):
         lines.append(f"VM{k} sweep m{k} DC 0")
         lines.append(f"DDC{k} m{k} 0 {name}")
@@ -71,7 +71,8 @@ def simulate(library_text, names, dc_volts, cap_volts, *, rs=None, temperature_c
     Parameters
     ----------
     library_text : str
-        ``.model`` cards (comments and continuation lines allowed).
+        ``.model`` cards (continuation lines allowed); comment lines are dropped
+        (:func:`~modelgen.spice.process.without_comments`), so none can be a command.
     names : list of str
         The model names to exercise.
     dc_volts : array_like

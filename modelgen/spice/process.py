@@ -25,7 +25,7 @@ import signal
 import subprocess
 import sys
 
-__all__ = ["SimulatorError", "run"]
+__all__ = ["SimulatorError", "run", "without_comments"]
 
 #: prctl option number of PR_SET_PDEATHSIG (linux/prctl.h).
 _PR_SET_PDEATHSIG = 1
@@ -41,6 +41,19 @@ class SimulatorError(RuntimeError):
     def __init__(self, message, output=""):
         super().__init__(message)
         self.output = output
+
+
+def without_comments(text):
+    """``text`` with every comment line removed, before it goes into a netlist.
+
+    ngspice runs a comment that starts ``*#`` as a control command and gnucap
+    runs one that starts ``*>``; a comment carries nothing a simulator needs,
+    so none is passed on. The text is split at every line break Python knows
+    (LF, CR, vertical tab, form feed, U+2028, ...), more than either simulator
+    splits at, so that a comment hidden behind one of them is removed too; the
+    pieces left are joined with LF.
+    """
+    return "\n".join(piece for piece in text.splitlines() if not piece.strip().startswith("*"))
 
 
 def _prctl():
