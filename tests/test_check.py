@@ -425,3 +425,34 @@ def test_the_runners_drop_comment_lines_too(form):
     netlist, _, _ = gnucap._netlist(text, [], check.DC_VOLTS, check.CAP_VOLTS, 27.0, None)
     for out in (deck, netlist):
         assert "touch" not in out and "*#" not in out.replace(".model *#", "") and "*>" not in out
+
+
+def test_cancel_kills_runs_in_other_threads_and_refuses_new_ones(tmp_path):
+    # check waits for a simulator in a worker thread while it evaluates; an interrupt in the
+    # main thread must end that run too, and a run the worker was about to start
+    import threading
+    from modelgen.spice import process
+    pid_file = tmp_path / "pid"
+    outcome = {}
+
+    def worker():
+        try:
+            outcome["result"] = process.run(["sh", "-c", f"echo $$ > {pid_file}; exec sleep 60"],
+                                            cwd=tmp_path, timeout=120, what="sleeper")
+        except process.SimulatorError as e:
+            outcome["error"] = e
+
+    thread = threading.Thread(target=worker)
+    thread.start()
+    try:
+        assert _wait_for(lambda: pid_file.exists() and pid_file.read_text().strip())
+        pid = int(pid_file.read_text())
+        process.cancel()
+        thread.join(timeout=30)
+        assert not thread.is_alive() and not _alive(pid)
+        assert outcome["result"][0] == -signal.SIGKILL
+        with pytest.raises(process.SimulatorError, match="cancelled"):
+            process.run(["true"], cwd=tmp_path, timeout=10, what="true")
+    finally:
+        process.allow()
+    assert process.run(["true"], cwd=tmp_path, timeout=10, what="true") == (0, "")

@@ -40,8 +40,11 @@ Scale
 -----
 Cards are run in chunks (:data:`CHUNK` cards per simulator process: gnucap's
 run time grows faster than linearly with the size of one netlist, ngspice's
-much less), so the time is linear in the number of cards. A sample of a big
-library can be checked instead of all of it (:func:`sample`).
+much less), so the time is linear in the number of cards. Each simulator
+process runs (waited for by a worker thread) while this thread evaluates the
+same cards, so the two overlap on two cores; most of the time is the
+evaluator's. A sample of a big library can be checked instead of all of it
+(:func:`sample`).
 
 Plausible values
 ----------------
@@ -348,15 +351,21 @@ def _reference(card, simulator, temperature, file):
     return i_ref, c_ref
 
 
-def _run_chunk(simulator, chunk, temperature, timeout, file):
+def _simulate_chunk(simulator, chunk, temperature, timeout):
     library, labels = deck_cards(chunk)
     rs = {label: c.params.get("RS", 0.0) for label, c in zip(labels, chunk)}
     kwargs = {"gmin": _GMIN_NGSPICE} if simulator == "ngspice" else {}
-    got = runner(simulator).simulate(library, labels, DC_VOLTS, CAP_VOLTS, rs=rs, temperature_c=temperature,
-                                     timeout=timeout, **kwargs)
+    return runner(simulator).simulate(library, labels, DC_VOLTS, CAP_VOLTS, rs=rs, temperature_c=temperature,
+                                      timeout=timeout, **kwargs), labels
+
+
+def _run_chunk(pool, simulator, chunk, temperature, timeout, file):
+    """One simulator process for ``chunk``, run while this thread evaluates the same cards."""
+    pending = pool.submit(_simulate_chunk, simulator, chunk, temperature, timeout)
+    refs = [_reference(c, simulator, temperature, file) for c in chunk]
+    got, labels = pending.result()
     out = []
-    for label, c in zip(labels, chunk):
-        i_ref, c_ref = _reference(c, simulator, temperature, file)
+    for label, c, (i_ref, c_ref) in zip(labels, chunk, refs):
         r = got[label]
         out.append(Outcome(c.name, simulator, c.section, _relative_error(r["current"], i_ref, CURRENT_FLOOR),
                            _relative_error(r["capacitance"], c_ref, CAPACITANCE_FLOOR),
@@ -392,9 +401,29 @@ def check_cards(cards, plan, *, file=None, temperature_c=None, timeout=DEFAULT_T
     modelgen.spice.process.SimulatorError
         A simulator failed or timed out.
     """
+    from concurrent.futures import ThreadPoolExecutor
+
+    from . import process
+
     total = sum(len(p) for p in plan)
-    done = 0
     results = {}
+    process.allow()
+    # one worker thread waits for the simulator while this one evaluates (the simulator runs
+    # on another core); on any exception here, the run in progress is killed, not awaited
+    pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="modelgen-simulator")
+    try:
+        _run_all(pool, cards, plan, results, temperature_c, timeout, file, progress, total)
+    except BaseException:
+        process.cancel()
+        raise
+    finally:
+        pool.shutdown(wait=True, cancel_futures=True)
+        process.allow()
+    return [results[(s, k)] for s in PACKAGES for k in range(len(cards)) if (s, k) in results]
+
+
+def _run_all(pool, cards, plan, results, temperature_c, timeout, file, progress, total):
+    done = 0
     for simulator in PACKAGES:
         groups = {}
         for k, (c, sims) in enumerate(zip(cards, plan)):
@@ -405,12 +434,11 @@ def check_cards(cards, plan, *, file=None, temperature_c=None, timeout=DEFAULT_T
             size = CHUNK.get(simulator, 50)
             for start in range(0, len(members), size):
                 part = members[start:start + size]
-                for k, o in zip(part, _run_chunk(simulator, [cards[k] for k in part], t, timeout, file)):
+                for k, o in zip(part, _run_chunk(pool, simulator, [cards[k] for k in part], t, timeout, file)):
                     results[(simulator, k)] = o
                 done += len(part)
                 if progress is not None:
                     progress(done, total)
-    return [results[(s, k)] for s in PACKAGES for k in range(len(cards)) if (s, k) in results]
 
 
 def diode_cards(text, file=None):

@@ -12,7 +12,11 @@ Every simulator run of :mod:`modelgen.spice` goes through :func:`run`:
 * a run that does not finish within its timeout, or that is interrupted
   (KeyboardInterrupt, or any exception raised while waiting, such as the
   one the command line raises on SIGTERM), has its process group killed
-  and reaped before the exception goes on.
+  and reaped before the exception goes on;
+* a run waited for in another thread (``check`` overlaps a simulator run
+  with its own evaluation) is ended from the main thread by :func:`cancel`,
+  which kills every run in progress and refuses new ones until
+  :func:`allow`.
 
 Failures are :class:`SimulatorError`: a one-line message for the user, the
 simulator's output kept apart in :attr:`SimulatorError.output`.
@@ -24,8 +28,9 @@ import os
 import signal
 import subprocess
 import sys
+import threading
 
-__all__ = ["SimulatorError", "run", "without_comments"]
+__all__ = ["SimulatorError", "allow", "cancel", "run", "without_comments"]
 
 #: prctl option number of PR_SET_PDEATHSIG (linux/prctl.h).
 _PR_SET_PDEATHSIG = 1
@@ -97,6 +102,28 @@ def _kill_group(proc):
         pass
 
 
+_LOCK = threading.Lock()
+_LIVE = set()
+_CANCELLED = False
+
+
+def allow():
+    """Let :func:`run` start processes again after a :func:`cancel`."""
+    global _CANCELLED
+    with _LOCK:
+        _CANCELLED = False
+
+
+def cancel():
+    """Kill every run in progress, in any thread, and refuse new ones until :func:`allow`."""
+    global _CANCELLED
+    with _LOCK:
+        _CANCELLED = True
+        live = list(_LIVE)
+    for proc in live:
+        _kill_group(proc)
+
+
 def run(argv, *, cwd, timeout, what):
     """Run ``argv`` in ``cwd`` and return ``(returncode, output)`` (stdout and stderr together).
 
@@ -121,7 +148,14 @@ def run(argv, *, cwd, timeout, what):
                                 stderr=subprocess.STDOUT, **posix)
     except OSError as e:
         raise SimulatorError(f"{what} could not be started: {e.strerror or e}") from None
+    with _LOCK:
+        cancelled = _CANCELLED
+        if not cancelled:
+            _LIVE.add(proc)
     try:
+        if cancelled:
+            _kill_group(proc)
+            raise SimulatorError(f"{what} run cancelled")
         out, _ = proc.communicate(timeout=timeout)
     except subprocess.TimeoutExpired:
         _kill_group(proc)
@@ -129,4 +163,7 @@ def run(argv, *, cwd, timeout, what):
     except BaseException:
         _kill_group(proc)
         raise
+    finally:
+        with _LOCK:
+            _LIVE.discard(proc)
     return proc.returncode, out.decode("utf-8", errors="replace")
