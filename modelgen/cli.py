@@ -175,8 +175,10 @@ def check_command(card_file, simulator, temperature, sample_size, timeout):
       1  a mismatch, a simulator warning, or a simulator that failed or timed out
       2  FILE is unreadable, holds no diode card, or a card is malformed or implausible
       3  none of the simulators needed is installed
+      130, 143  interrupted (SIGINT, SIGTERM); its simulator runs are killed too
     """
     import signal
+    import threading
     import time
 
     from .cards import reader
@@ -195,7 +197,10 @@ def check_command(card_file, simulator, temperature, sample_size, timeout):
     def stop(signum, frame):
         raise KeyboardInterrupt(signum)
 
-    previous = signal.signal(signal.SIGTERM, stop)
+    # SIGTERM becomes an exception, so the simulator runs in progress are killed on the way out
+    # (a signal handler can only be set from the main thread; elsewhere the default stays)
+    main_thread = threading.current_thread() is threading.main_thread()
+    previous = signal.signal(signal.SIGTERM, stop) if main_thread else None
     try:
         text = reader.read_limited(card_file)
         report = check.check_report(text, None if simulator is None else
@@ -212,7 +217,8 @@ def check_command(card_file, simulator, temperature, sample_size, timeout):
         click.echo("modelgen: check interrupted; its simulator runs were stopped", err=True)
         sys.exit(128 + int(signum))
     finally:
-        signal.signal(signal.SIGTERM, previous)
+        if main_thread:
+            signal.signal(signal.SIGTERM, previous)
     for s, n in report.not_installed.items():
         click.echo(f"modelgen: {s} is not installed (Debian package: {check.PACKAGES[s]}); "
                    f"{n} card{'s' if n != 1 else ''} not checked with it", err=True)
