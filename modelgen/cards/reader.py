@@ -38,9 +38,9 @@ What is refused, with a :class:`CardSyntaxError` that gives the line:
 * text beyond the bounds of what a card needs: a number longer than
   :data:`MAX_NUMBER` characters, a model name longer than :data:`MAX_NAME`
   or holding a control or format character, a parameter name longer than
-  :data:`MAX_KEY`, a line (not a comment) longer than :data:`MAX_LINE`, and
-  (in :func:`read_limited`) a file larger than :data:`MAX_FILE_BYTES` or not
-  a regular file;
+  :data:`MAX_KEY`, a line (not a comment) longer than :data:`MAX_LINE`, more
+  than :data:`MAX_CARDS` cards, and (in :func:`read_limited`) a file larger
+  than :data:`MAX_FILE_BYTES` or not a regular file;
 * a ``.model`` line without a name or without a type, a parameter without a
   ``=`` and a value, a parameter name that is not a name, unbalanced or
   misplaced parentheses;
@@ -136,9 +136,13 @@ MAX_KEY = 32
 #: Longest line that is not a comment [characters] (gnucap reads at most 4095
 #: characters a line, so a longer one is not portable anyway).
 MAX_LINE = 4096
-#: Largest card file read [bytes]: twice the 100,000-card library (55 MB)
-#: the README quotes.
+#: Largest card file read [bytes]: above the 100,000-card library (55-75 MB
+#: by dialect) the README quotes.
 MAX_FILE_BYTES = 128 * 1024 * 1024
+#: Most ``.model`` cards read from one text: twice that library. With the
+#: size limit this bounds the reading time too (about 5 s for 200,000 one-line
+#: cards on a 2-core machine; 12 s for the 100,000 cards modelgen writes).
+MAX_CARDS = 200_000
 
 
 def parse_number(text, *, file=None, line=None, key=None):
@@ -332,6 +336,9 @@ def read_cards(text, *, file=None):
         words = " ".join(s for _, s in pieces).split()
         keyword = words[0].lower()
         if keyword == ".model":
+            if len(cards) >= MAX_CARDS:
+                raise CardSyntaxError(f"more than {MAX_CARDS} .model cards: split the library", file=file,
+                                      row=first)
             card = _card(pieces, section[0] if section else None, file)
             where = (card.section.upper() if card.section else None, card.name.upper())
             if where in seen:
