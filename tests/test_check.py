@@ -157,9 +157,9 @@ def test_a_simulator_that_times_out_is_exit_1_in_one_line_and_is_killed(tmp_path
     _fake_simulator(tmp_path, monkeypatch, f"echo $$ > {pid_file}\nfor i in 1 2 3; do echo noise; done\nexec sleep 60")
     f = tmp_path / "x.lib"
     f.write_text(CARD)
-    r = run_check(f, "--simulator", "ngspice", "--timeout", "0.5")
+    r = run_check(f, "--simulator", "ngspice", "--timeout", "1.5")
     assert r.exit_code == 1, r.output
-    assert r.stderr.strip().splitlines() == [f"modelgen: error: {f}: ngspice did not finish within 0.5 s"]
+    assert r.stderr.strip().splitlines() == [f"modelgen: error: {f}: ngspice did not finish within 1.5 s"]
     assert "noise" not in r.output  # the simulator's output is not dumped
     assert not _alive(int(pid_file.read_text()))
 
