@@ -220,7 +220,7 @@ def check_command(card_file, simulator, temperature, sample_size, timeout):
         if main_thread:
             signal.signal(signal.SIGTERM, previous)
     for s, n in report.not_installed.items():
-        click.echo(f"modelgen: {s} is not installed (Debian package: {check.PACKAGES[s]}); "
+        click.echo(f"modelgen: {s} is not installed (Debian package: {check.PACKAGES.get(s, s)}); "
                    f"{n} card{'s' if n != 1 else ''} not checked with it", err=True)
     outcomes = report.outcomes
     if not outcomes:

@@ -500,7 +500,7 @@ def check_report(text, simulators=None, *, file=None, temperature_c=None, sample
     chosen = [cards[k] for k in sample(len(cards), sample_size)]
     wanted = [tuple(simulators)] * len(chosen) if simulators else meant_for(chosen, text)
     is_there = {}
-    for s in {s for w in wanted for s in w}:
+    for s in dict.fromkeys(s for w in wanted for s in w):
         is_there[s] = (available or installed)(s)
     missing = {}
     plan = []
