@@ -92,6 +92,16 @@ def test_spice3_card_runs_in_both_and_gnucap_card_in_gnucap(tmp_path):
     assert " gnucap " in r.stdout and " ngspice " not in r.stdout
 
 
+def test_a_simulator_not_installed_is_named_and_the_rest_still_run(tmp_path, monkeypatch):
+    need("ngspice")
+    f = _card_file(tmp_path, "spice3")  # meant for ngspice and gnucap
+    monkeypatch.setattr(check, "installed", lambda s: s == "ngspice")
+    r = run_check(f)
+    assert r.exit_code == 0, r.output
+    assert "gnucap is not installed (Debian package: gnucap); 1 card not checked with it" in r.stderr
+    assert "1 of 1 checks passed: ngspice" in r.stdout
+
+
 def _written_by_modelgen(tmp_path, dialect):
     """Every kind of file modelgen writes in ``dialect``: cards, corners, per-corner and lot libraries."""
     examples = sorted(str(p) for p in (ROOT / "examples").glob("*.toml"))
