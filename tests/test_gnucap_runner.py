@@ -206,11 +206,13 @@ def test_messages_about_other_cards_stay_with_them(needs_gnucap):
         "? DOTHER: bad parameter ISR ignored"]
 
 
-def test_a_card_gnucap_cannot_load_raises_with_its_output(needs_gnucap):
+def test_a_card_gnucap_cannot_load_raises_one_line_and_keeps_its_output(needs_gnucap):
     library = ".model DLEVEL D (IS=1e-15 LEVEL=1)\n"
     with pytest.raises(RuntimeError, match="DLEVEL") as info:
         gnucap.simulate(library, ["DLEVEL"], [0.5], [0.0])
     assert "can't find" in str(info.value)  # gnucap reads LEVEL=1 as a model type "D1"
+    assert "\n" not in str(info.value)  # one line for the user ...
+    assert "Gnucap" in info.value.output  # ... the whole output (banner included) kept apart
 
 
 def test_the_switching_diode_example_card(needs_gnucap):

@@ -250,3 +250,23 @@ def test_round_trip_of_a_modelgen_card(dialect):
     # the sidewall is folded into IS where the dialect has no sidewall terms, split where it has
     total_is = c.params["IS"] + c.params.get("JSW", 0.0) * c.params.get("PJ", 0.0)
     assert total_is == pytest.approx(p["IS"], rel=1e-15)
+
+
+def test_reading_is_bounded_in_cards(monkeypatch):
+    # a bound on the number of cards bounds the reading time along with the file size
+    from modelgen.cards import reader
+    monkeypatch.setattr(reader, "MAX_CARDS", 3)
+    assert len(read_cards(".model A D\n.model B D\n.model C D\n")) == 3
+    with pytest.raises(CardSyntaxError, match="more than 3 .model cards") as info:
+        read_cards(".model A D\n* x\n.model B D\n.model C D\n.model E D\n")
+    assert info.value.line == 5
+
+
+def test_duplicate_model_names_per_section_any_case():
+    # SPICE names are case-insensitive (ngspice manual, ch. 2); one name per section
+    with pytest.raises(CardSyntaxError, match="defined twice") as info:
+        read_cards(".model DA D (IS=1)\n.model da D (IS=2)\n")
+    assert info.value.line == 2
+    # the same name in different sections is what corner libraries are made of
+    cards = read_cards(".lib a\n.model DX D\n.endl a\n.lib b\n.model DX D\n.endl b\n")
+    assert [(c.name, c.section) for c in cards] == [("DX", "a"), ("DX", "b")]

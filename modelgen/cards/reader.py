@@ -33,7 +33,14 @@ What is refused, with a :class:`CardSyntaxError` that gives the line:
 * a number that is not a SPICE number (see :func:`parse_number`); values are
   numbers only, so ``{expressions}`` and ``'expressions'`` are refused too;
 * a parameter written twice in one card (a card that says two things is
-  suspicious; SPICE itself would silently keep one of them);
+  suspicious; SPICE itself would silently keep one of them), and a model
+  name defined twice in one section (or twice outside sections), in any case;
+* text beyond the bounds of what a card needs: a number longer than
+  :data:`MAX_NUMBER` characters, a model name longer than :data:`MAX_NAME`
+  or holding a control or format character, a parameter name longer than
+  :data:`MAX_KEY`, a line (not a comment) longer than :data:`MAX_LINE`, more
+  than :data:`MAX_CARDS` cards, and (in :func:`read_limited`) a file larger
+  than :data:`MAX_FILE_BYTES` or not a regular file;
 * a ``.model`` line without a name or without a type, a parameter without a
   ``=`` and a value, a parameter name that is not a name, unbalanced or
   misplaced parentheses;
@@ -57,7 +64,7 @@ from dataclasses import dataclass, field
 from ..errors import InputError
 from ..textio import read_text
 
-__all__ = ["Card", "CardSyntaxError", "parse_number", "read_cards", "read_file", "read_text"]
+__all__ = ["Card", "CardSyntaxError", "parse_number", "read_cards", "read_file", "read_limited", "read_text"]
 
 
 class CardSyntaxError(InputError):
@@ -114,7 +121,28 @@ _SUFFIXES = sorted(SCALE, key=len, reverse=True)
 # Mantissa, optional exponent, then letters only. As in ngspice, an "e"
 # straight after the mantissa always starts the exponent, and an exponent
 # with no digits is zero: "1emeg" is 1e6 and "1.1eV" is 1.1 in ngspice-39.
-_NUMBER = re.compile(r"([+-]?(?:\d+\.?\d*|\.\d+))(?:[eE]([+-]?)(\d*))?([A-Za-z]*)")
+# Each repeat is separated from the next by a character it cannot match, so a
+# failing match costs time linear in the text (no nested or adjacent
+# unbounded repeats that could split one run of digits several ways); the
+# text is also refused beyond MAX_NUMBER characters before any matching.
+_NUMBER = re.compile(r"([+-]?(?:\d+(?:\.\d*)?|\.\d+))(?:[eE]([+-]?)(\d*))?([A-Za-z]*)")
+#: Longest number text read [characters]: 17 significant digits, sign, point,
+#: a three-digit exponent and a unit word fit with room to spare.
+MAX_NUMBER = 100
+#: Longest model name [characters] (modelgen writes at most 64).
+MAX_NAME = 128
+#: Longest parameter name [characters] (SPICE's are at most 8 or so).
+MAX_KEY = 32
+#: Longest line that is not a comment [characters] (gnucap reads at most 4095
+#: characters a line, so a longer one is not portable anyway).
+MAX_LINE = 4096
+#: Largest card file read [bytes]: above the 100,000-card library (55-75 MB
+#: by dialect) the README quotes.
+MAX_FILE_BYTES = 128 * 1024 * 1024
+#: Most ``.model`` cards read from one text: twice that library. With the
+#: size limit this bounds the reading time too (about 5 s for 200,000 one-line
+#: cards on a 2-core machine; 12 s for the 100,000 cards modelgen writes).
+MAX_CARDS = 200_000
 
 
 def parse_number(text, *, file=None, line=None, key=None):
@@ -134,6 +162,9 @@ def parse_number(text, *, file=None, line=None, key=None):
     for values beyond the range of a double.
     """
     s = str(text).strip()
+    if len(s) > MAX_NUMBER:
+        raise CardSyntaxError(f"a number of {len(s)} characters ({s[:20]!r}...): at most {MAX_NUMBER} are read",
+                              file=file, row=line, key=key)
     m = _NUMBER.fullmatch(s)
     if m is None:
         if s[:1] in ("{", "'", '"'):
@@ -143,20 +174,28 @@ def parse_number(text, *, file=None, line=None, key=None):
         raise CardSyntaxError(why, file=file, row=line, key=key)
     mantissa, sign, digits, letters = m.groups()
     scale = "1"
-    upper = letters.upper()
-    for suffix in _SUFFIXES:
-        if upper.startswith(suffix):
-            scale = SCALE[suffix]
-            break
-    # exact decimal product (enough digits for the mantissa's and the scale's),
-    # then one correct rounding to a double
-    ctx = decimal.Context(prec=len(mantissa) + 8, Emax=decimal.MAX_EMAX, Emin=decimal.MIN_EMIN)
-    try:
-        exact = decimal.Decimal(f"{mantissa}e{sign or ''}{digits or '0'}")
-        value = float(ctx.multiply(exact, decimal.Decimal(scale)))
-    except (ArithmeticError, ValueError):
-        exact, value = None, math.inf
-    if not math.isfinite(value) or (value == 0.0 and exact != 0):
+    if letters:
+        upper = letters.upper()
+        for suffix in _SUFFIXES:
+            if upper.startswith(suffix):
+                scale = SCALE[suffix]
+                break
+    literal = f"{mantissa}e{sign or ''}{digits or '0'}"
+    if scale == "1":
+        # no scale factor: float() of a decimal literal is already the correctly rounded double
+        value = float(literal)
+        nonzero = mantissa.lstrip("+-").replace(".", "").strip("0") != ""
+    else:
+        # exact decimal product (enough digits for the mantissa's and the scale's),
+        # then one correct rounding to a double
+        ctx = decimal.Context(prec=len(mantissa) + 8, Emax=decimal.MAX_EMAX, Emin=decimal.MIN_EMIN)
+        try:
+            exact = decimal.Decimal(literal)
+            value = float(ctx.multiply(exact, decimal.Decimal(scale)))
+            nonzero = exact != 0
+        except (ArithmeticError, ValueError):
+            nonzero, value = True, math.inf
+    if not math.isfinite(value) or (value == 0.0 and nonzero):
         raise CardSyntaxError(f"{s!r} is beyond the range of a double", file=file, row=line, key=key)
     return value
 
@@ -170,6 +209,15 @@ _TOKEN = re.compile(r"[()=]|[^\s,()=]+")
 _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
 
 
+def split_lines(text):
+    """The physical lines of ``text`` as SPICE reads them: split at CR LF, CR or LF only.
+
+    (Python's ``str.splitlines`` also splits at vertical tab, form feed,
+    U+2028 and more, which a simulator does not: line numbers would drift.)
+    """
+    return _NEWLINE.split(text)
+
+
 def _logical_lines(text, file):
     """``(first line number, [(line number, text), ...])`` per logical line.
 
@@ -179,10 +227,13 @@ def _logical_lines(text, file):
     if text.startswith("\ufeff"):
         text = text[1:]
     current = None
-    for number, raw in enumerate(_NEWLINE.split(text), start=1):
+    for number, raw in enumerate(split_lines(text), start=1):
         s = raw.strip()
         if not s or s.startswith("*"):
             continue
+        if len(s) > MAX_LINE:
+            raise CardSyntaxError(f"a line of {len(s)} characters: at most {MAX_LINE} are read outside comments",
+                                  file=file, row=number)
         m = _INLINE_COMMENT.search(s)
         if m:
             s = s[:m.start()].rstrip()
@@ -216,6 +267,12 @@ def _card(pieces, section, file):
     if not toks or toks[0][0] in "()=":
         raise CardSyntaxError(".model line without a model name", file=file, row=first)
     name = toks[0][0]
+    if len(name) > MAX_NAME:
+        raise CardSyntaxError(f"a model name of {len(name)} characters ({name[:20]!r}...): at most {MAX_NAME}",
+                              file=file, row=toks[0][1])
+    if not name.isprintable():
+        raise CardSyntaxError(f".model {name!r}: the name holds a control or format character",
+                              file=file, row=toks[0][1])
     if len(toks) < 2 or toks[1][0] in "()=" or (len(toks) > 2 and toks[2][0] == "="):
         raise CardSyntaxError(f".model {name}: no model type (such as D) after the name",
                               file=file, row=toks[0][1])
@@ -242,8 +299,10 @@ def _card(pieces, section, file):
         if t in "(=":
             raise CardSyntaxError(f".model {name}: unexpected {t!r} where a parameter name should be",
                                   file=file, row=number)
-        if not _NAME.fullmatch(t):
-            raise CardSyntaxError(f".model {name}: {t!r} is not a parameter name", file=file, row=number)
+        if len(t) > MAX_KEY or not _NAME.fullmatch(t):
+            shown = t if len(t) <= MAX_KEY else t[:20] + "..."
+            raise CardSyntaxError(f".model {name}: {shown!r} is not a parameter name (a letter, then letters, "
+                                  f"digits or _, at most {MAX_KEY})", file=file, row=number)
         key = t.upper()
         if i + 1 >= len(rest) or rest[i + 1][0] != "=":
             raise CardSyntaxError(f".model {name}: parameter {t} has no value (write {t}=value)",
@@ -272,11 +331,22 @@ def read_cards(text, *, file=None):
     """
     cards = []
     section = None                       # (name, line of the .lib)
+    seen = {}                            # (section, NAME) -> line of its .model
     for first, pieces in _logical_lines(str(text), file):
         words = " ".join(s for _, s in pieces).split()
         keyword = words[0].lower()
         if keyword == ".model":
-            cards.append(_card(pieces, section[0] if section else None, file))
+            if len(cards) >= MAX_CARDS:
+                raise CardSyntaxError(f"more than {MAX_CARDS} .model cards: split the library", file=file,
+                                      row=first)
+            card = _card(pieces, section[0] if section else None, file)
+            where = (card.section.upper() if card.section else None, card.name.upper())
+            if where in seen:
+                place = f"section {card.section}" if card.section else "outside any section"
+                raise CardSyntaxError(f".model {card.name} is defined twice {place} (first on line {seen[where]}); "
+                                      "SPICE names are case-insensitive", file=file, row=card.line)
+            seen[where] = card.line
+            cards.append(card)
         elif keyword == ".lib":
             args = words[1:]
             if not args:
@@ -302,11 +372,61 @@ def read_cards(text, *, file=None):
     return cards
 
 
+def read_limited(path, limit=None, kind="card file"):
+    """The UTF-8 text of the regular file ``path``, refusing more than ``limit`` bytes.
+
+    The file is opened without blocking (a FIFO cannot stall it), checked to
+    be a regular file (a directory, a device such as ``/dev/zero``, also
+    through a symbolic link, is refused before anything is read), and read
+    with a cap of ``limit + 1`` bytes (default :data:`MAX_FILE_BYTES`), so a file that grows while it is read
+    cannot exhaust memory either.
+
+    Raises
+    ------
+    InputError
+        Naming the file: missing, not a regular file, too large, unreadable,
+        or not UTF-8.
+    """
+    import os
+    import stat
+
+    limit = MAX_FILE_BYTES if limit is None else limit
+    name = str(path)
+    try:
+        fd = os.open(name, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_CLOEXEC", 0))
+    except FileNotFoundError:
+        raise InputError("no such file", file=name) from None
+    except IsADirectoryError:
+        raise InputError(f"is a directory, not a {kind}", file=name) from None
+    except OSError as e:
+        raise InputError(f"cannot be read: {e.strerror or e}", file=name) from None
+    try:
+        mode = os.fstat(fd).st_mode
+        if stat.S_ISDIR(mode):
+            raise InputError(f"is a directory, not a {kind}", file=name)
+        if not stat.S_ISREG(mode):
+            raise InputError(f"is not a regular file (a device, FIFO or socket), not a {kind}", file=name)
+    except BaseException:
+        os.close(fd)
+        raise
+    with os.fdopen(fd, "rb") as fh:
+        try:
+            data = fh.read(limit + 1)
+        except OSError as e:
+            raise InputError(f"cannot be read: {e.strerror or e}", file=name) from None
+    if len(data) > limit:
+        raise InputError(f"is larger than {limit // (1024 * 1024)} MiB, the most a {kind} may hold", file=name)
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as e:
+        raise InputError(f"not UTF-8 text (bad byte at offset {e.start})", file=name) from None
+
+
 def read_file(path):
-    """:func:`read_cards` of a UTF-8 text file.
+    """:func:`read_cards` of a UTF-8 text file (read with :func:`read_limited`).
 
     Raises :class:`~modelgen.errors.InputError` naming the file when it is
-    missing, not a file, unreadable or not UTF-8, and
+    missing, not a regular file, too large, unreadable or not UTF-8, and
     :class:`CardSyntaxError` (with the file) for what is in it.
     """
-    return read_cards(read_text(path, "card file"), file=str(path))
+    return read_cards(read_limited(path), file=str(path))

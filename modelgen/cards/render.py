@@ -300,8 +300,8 @@ def models_lines(result):
 def file_header(dialect, title, count, *, result=None, extra=()):
     """The header lines of a card file: what made it, the dialect, models, caution, what is not carried."""
     d = targets.get(dialect)
-    plural = "card" if count == 1 else "cards"
-    header = comment_lines(f"{title}: {count} {plural}, modelgen {__version__}, dialect {d.name} ({d.title})")
+    counted = title if count == 1 else f"{title}: {count} cards"
+    header = comment_lines(f"{counted}, modelgen {__version__}, dialect {d.name} ({d.title})")
     for line in extra:
         header += comment_lines(line)
     if result is not None:

@@ -22,6 +22,8 @@ simulator. It works at the card's TNOM (temperature scaling comes later).
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 
 from .. import targets
@@ -46,18 +48,16 @@ def simulator_of(simulator):
 DEFAULTS = {"IS": 1e-14, "N": 1.0, "RS": 0.0, "CJO": 0.0, "VJ": 1.0, "M": 0.5, "FC": 0.5, "TT": 0.0,
             "BV": np.inf, "IBV": 1e-3, "NBV": 1.0, "ISR": 0.0, "NR": 2.0, "IKF": 0.0,
             "JSW": 0.0, "CJSW": 0.0, "MJSW": 0.33, "PHP": 1.0, "FCS": 0.5, "AREA": 1.0, "PJ": 0.0,
-            "TNOM": 27.0}
+            "TNOM": 27.0, "EG": 1.11, "XTI": 3.0}
+#: Other names the simulators read for the same parameters (ngspice's diode parameter table).
+ALIASES = {"CJ": "CJO", "CJ0": "CJO", "PB": "VJ", "MJ": "M", "CJP": "CJSW", "VJSW": "PHP", "PBSW": "PHP"}
 
 
 def _params(card):
     p = dict(DEFAULTS)
     for k, v in card.items():
         k = k.upper()
-        if k == "CJP":
-            k = "CJSW"
-        if k in ("VJSW", "PBSW"):
-            k = "PHP"
-        p[k] = float(v)
+        p[ALIASES.get(k, k)] = float(v)
     return p
 
 
@@ -151,10 +151,14 @@ def _breakdown_knee(p, csat, vt):
     SPICE's iteration (as in SPICE3's diode temperature routine): solve
     IS (exp((BV - x)/(NBV Vt)) - 1 + x/Vt) = IBV for x.
     """
-    bv, cbv, nbv = p["BV"], p["IBV"], p["NBV"]
+    return _knee(float(p["BV"]), float(p["IBV"]), float(p["NBV"]), float(csat), float(vt))
+
+
+@lru_cache(maxsize=4096)
+def _knee(bv, cbv, nbv, csat, vt):
     if not np.isfinite(bv):
         return np.inf
-    if cbv < csat * bv / vt:
+    if csat <= 0 or cbv < csat * bv / vt:
         return bv
     xbv = bv - nbv * vt * np.log(1 + cbv / csat)
     for _ in range(25):

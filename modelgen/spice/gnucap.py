@@ -65,13 +65,13 @@ from __future__ import annotations
 import math
 import re
 import shutil
-import subprocess
 import tempfile
 from pathlib import Path
 
 import numpy as np
 
 from ..cards import reader
+from .process import SimulatorError, run, without_comments
 
 __all__ = ["available", "simulate", "AC_FREQUENCY", "DC_SHORT", "AC_SHORT", "NUMDGT"]
 
@@ -83,10 +83,11 @@ NUMDGT = 15  # digits gnucap prints; its own formatter is good to about 1e-11 re
 
 _TITLE = "modelgen gnucap batch run"
 # A value as gnucap prints it: mantissa, optional exponent, optional scale letter ("Meg" for 1e6).
-_PRINTED = re.compile(r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?(?:Meg|[fpnumKGT])?"
+_PRINTED = re.compile(r"[-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?(?:Meg|[fpnumKGT])?"
                       r"|\?\?|NA|[-+]?Inf|NaN|[-+]?Over")
 _PRINTED_SCALE = {"f": 1e-15, "p": 1e-12, "n": 1e-9, "u": 1e-6, "m": 1e-3,
                   "K": 1e3, "Meg": 1e6, "G": 1e9, "T": 1e12}
+_COMPLAINT = re.compile(r"^\s*\^|can't|error|bad |\? ", re.IGNORECASE)  # a gnucap complaint line
 _INSTANCE = re.compile(r"\b[XC][IQ](\d+)_\d+\b", re.IGNORECASE)  # our subcircuits and their instances
 _BANNER = ("Gnucap ", "Never trust", "Copyright", "Gnucap comes", "This is free software",
            "to redistribute", "the GNU General", "See the file", "main version:",
@@ -111,9 +112,9 @@ def simulate(library_text: str, names: list[str], dc_volts, cap_volts, *, temper
     Parameters
     ----------
     library_text : str
-        ``.model NAME D (...)`` cards with ``*`` comments and ``+`` continuation
-        lines, passed to gnucap as they are (lines that are just ``.end`` are
-        dropped).
+        ``.model NAME D (...)`` cards with ``+`` continuation lines, passed to
+        gnucap without comment lines (any of which could be a ``*>`` command)
+        and without lines that are just ``.end``.
     names : list of str
         Models to simulate, one diode per model and bias.  Gnucap matches model
         names without regard to case; so does this function.
@@ -152,9 +153,9 @@ def simulate(library_text: str, names: list[str], dc_volts, cap_volts, *, temper
     ValueError
         A name is missing from ``library_text``, is not a ``D`` model, or is
         given twice.
-    RuntimeError
-        Gnucap is missing, fails, times out or prints no results; the message
-        carries its output.
+    modelgen.spice.process.SimulatorError
+        Gnucap is missing, fails, times out or prints no results (a
+        RuntimeError): one line, with gnucap's output in its ``output``.
     """
     names = list(names)
     dc = np.atleast_1d(np.asarray(dc_volts, dtype=float)).ravel()
@@ -202,22 +203,14 @@ def simulate(library_text: str, names: list[str], dc_volts, cap_volts, *, temper
 def _run(netlist: str, *, timeout: float) -> str:
     exe = shutil.which(GNUCAP)
     if exe is None:
-        raise RuntimeError("gnucap is not on PATH (Debian package: gnucap)")
+        raise SimulatorError("gnucap is not on PATH (Debian package: gnucap)")
     with tempfile.TemporaryDirectory(prefix="modelgen-gnucap-") as tmp:
         path = Path(tmp) / "run.ckt"
         path.write_text(netlist)
-        try:
-            proc = subprocess.run([exe, "-b", str(path)], capture_output=True, text=True,
-                                  stdin=subprocess.DEVNULL, cwd=tmp, timeout=timeout)
-        except subprocess.TimeoutExpired as exc:
-            out = (exc.stdout or b"")
-            out = out.decode(errors="replace") if isinstance(out, bytes) else out
-            raise RuntimeError(f"gnucap did not finish in {timeout} s; its output:\n{out}") from None
-        except OSError as exc:
-            raise RuntimeError(f"gnucap could not be started: {exc}") from None
-    output = proc.stdout + proc.stderr
-    if proc.returncode != 0:
-        raise RuntimeError(f"gnucap exited with status {proc.returncode}; its output:\n{output}")
+        code, output = run([exe, "-b", str(path)], cwd=tmp, timeout=timeout, what="gnucap")
+    if code != 0:
+        why = f"killed by signal {-code}" if code < 0 else f"exit status {code}"
+        raise SimulatorError(f"gnucap failed ({why})", output=output)
     return output
 
 
@@ -233,7 +226,7 @@ def _netlist(library_text, names, dc, cv, temperature_c, gmin):
     prints them as ``XI0_3.D1``.  (It has no probe for a node inside a
     subcircuit; the source's own ``v`` is the same voltage.)
     """
-    library = "\n".join(line for line in library_text.splitlines()
+    library = "\n".join(line for line in without_comments(library_text).split("\n")
                         if line.strip().lower() != ".end")
     lines = [_TITLE, library, "* one diode and its source per model and bias, each in a subcircuit"]
     op_probes, op_labels, ac_probes, ac_labels = [], [], [], []
@@ -307,7 +300,9 @@ def _block(blocks, labels, output) -> np.ndarray:
         if [h.lower() for h in header[-len(want):]] == want and len(tokens) == len(want) + 1:
             return np.array([_value(t) for t in tokens[1:]])
     analysis = ".ac" if labels[0].startswith("v") else ".op"
-    raise RuntimeError(f"gnucap printed no {analysis} results; its output:\n" + output)
+    problems = list(dict.fromkeys(ln.strip().lstrip("^ ") for ln in output.splitlines() if _COMPLAINT.search(ln)))
+    detail = f": {'; '.join(problems[:3])[:300]}" if problems else ""
+    raise SimulatorError(f"gnucap printed no {analysis} results{detail}", output=output)
 
 
 def _messages(output: str, names: list[str], library_names: list[str]) -> list[list[str]]:

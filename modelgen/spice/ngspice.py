@@ -15,10 +15,11 @@ from __future__ import annotations
 import os
 import re
 import shutil
-import subprocess
 import tempfile
 
 import numpy as np
+
+from .process import SimulatorError, run, without_comments
 
 #: AC analysis frequency for the capacitance [Hz].
 FREQUENCY = 1e6
@@ -31,7 +32,7 @@ def available():
 
 
 def _deck(library_text, names, dc_volts, cap_volts, temperature_c, gmin, out_dc, out_ac):
-    lines = ["* modelgen check deck", library_text.rstrip("\n"), "VSWEEP sweep 0 DC 0"]
+    lines = ["* modelgen check deck", without_comments(library_text), "VSWEEP sweep 0 DC 0"]
     for k, name in enumerate(names):
         lines.append(f"VM{k} sweep m{k} DC 0")
         lines.append(f"DDC{k} m{k} 0 {name}")
@@ -70,7 +71,8 @@ def simulate(library_text, names, dc_volts, cap_volts, *, rs=None, temperature_c
     Parameters
     ----------
     library_text : str
-        ``.model`` cards (comments and continuation lines allowed).
+        ``.model`` cards (continuation lines allowed); comment lines are dropped
+        (:func:`~modelgen.spice.process.without_comments`), so none can be a command.
     names : list of str
         The model names to exercise.
     dc_volts : array_like
@@ -95,31 +97,30 @@ def simulate(library_text, names, dc_volts, cap_volts, *, rs=None, temperature_c
 
     Raises
     ------
-    RuntimeError
-        ngspice missing, failed, or wrote no results.
+    modelgen.spice.process.SimulatorError
+        ngspice missing, failed, timed out, or wrote no results (a RuntimeError; one line,
+        the log in its ``output``).
     """
     if not available():
-        raise RuntimeError("ngspice is not installed (Debian package: ngspice)")
+        raise SimulatorError("ngspice is not installed (Debian package: ngspice)")
     rs = rs or {}
     with tempfile.TemporaryDirectory(prefix="modelgen-ngspice-") as tmp:
         out_dc, out_ac = os.path.join(tmp, "dc.txt"), os.path.join(tmp, "ac.txt")
         deck = os.path.join(tmp, "deck.cir")
         with open(deck, "w") as fh:
             fh.write(_deck(library_text, names, dc_volts, cap_volts, temperature_c, gmin, out_dc, out_ac))
-        try:
-            proc = subprocess.run(["ngspice", "-b", deck], capture_output=True, text=True, timeout=timeout,
-                                  cwd=tmp, stdin=subprocess.DEVNULL)
-        except subprocess.TimeoutExpired:
-            raise RuntimeError(f"ngspice did not finish within {timeout:g} s") from None
-        log = proc.stdout + proc.stderr
+        code, log = run(["ngspice", "-b", deck], cwd=tmp, timeout=timeout, what="ngspice")
         messages = [ln.strip() for ln in log.splitlines() if _PROBLEM.search(ln)]
         # ngspice -b exits 1 after a .control run even when all went well: judge by its output
         if not os.path.exists(out_dc) or (len(cap_volts) and not os.path.exists(out_ac)):
-            raise RuntimeError("ngspice failed:\n" + log[-4000:])
+            why = f"killed by signal {-code}" if code < 0 else f"exit status {code}"
+            first = messages[0] if messages else "no results written"
+            raise SimulatorError(f"ngspice failed ({why}): {first[:200]}", output=log)
         _, dc = _read_table(out_dc)
         result = {}
         for k, name in enumerate(names):
-            mine = [m for m in messages if name.lower() in m.lower()]
+            word = re.compile(r"(?<![A-Za-z0-9_])" + re.escape(name) + r"(?![A-Za-z0-9_])", re.I)
+            mine = [m for m in messages if word.search(m)]
             result[name] = {"voltage": dc[:, 0], "current": dc[:, 1 + k],
                             # ngspice names the model in some messages, only the line in others
                             "messages": mine or messages}
@@ -134,7 +135,10 @@ def simulate(library_text, names, dc_volts, cap_volts, *, rs=None, temperature_c
                     col = 2 * (k * len(cap_volts) + j)
                     i_src = complex(vals[col], vals[col + 1])
                     y = -i_src  # source current flows into its + node; the diode's is the opposite
+                    if y == 0:  # no admittance printed at all: no capacitance either
+                        caps.append(0.0)
+                        continue
                     zj = 1 / y - rs.get(name, 0.0)
-                    caps.append((1 / zj).imag / omega)
+                    caps.append((1 / zj).imag / omega if zj != 0 else np.inf)
                 result[name]["capacitance"] = np.array(caps)
     return result
