@@ -79,12 +79,18 @@ def test_toy_target_in_the_evaluator_and_the_temperature_fit(toy):
     assert "EG=" in text and "temperature fit over -40 to 125 degC" in text
 
 
-def test_toy_target_proven_in_its_simulator(toy):
+def test_toy_target_proven_in_its_simulator(toy, tmp_path):
     need("ngspice")
     r = extraction.derive(description.load(EXAMPLE))
     text = cards.card(r, 0, dialect="toyline")
     outcomes = check.check_text(text, list(toy.simulators))
     assert outcomes and all(o.ok for o in outcomes), outcomes
+    # `modelgen check` with no options reads the dialect from the header and runs the toy's simulators only
+    path = tmp_path / "toy.lib"
+    path.write_text(text)
+    res = CliRunner().invoke(main, ["check", str(path)])
+    assert res.exit_code == 0, res.output
+    assert "ngspice" in res.stdout and "gnucap" not in res.stdout
 
 
 def test_toy_target_on_the_command_line(toy, tmp_path):
