@@ -56,12 +56,12 @@ input (:class:`~modelgen.cards.reader.CardSyntaxError`), not a failed check.
 from __future__ import annotations
 
 import bisect
-import importlib
 import math
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from .. import targets
 from ..cards import reader
 from ..errors import InputError
 from . import evaluator
@@ -71,18 +71,14 @@ CAP_VOLTS = np.array([0.0, -1.0, -5.0])
 #: Relative agreement asked of simulator and evaluator.
 TOLERANCE = 1e-3
 #: Simulators modelgen knows how to run, and the Debian package of each.
-PACKAGES = {"ngspice": "ngspice", "gnucap": "gnucap"}
-#: Cards per simulator process. Measured on a 2-core machine with cards from
-#: ``modelgen lots``: gnucap takes 0.06 s for 25 cards, 0.11 s for 50, 0.34 s
-#: for 100 and 1.8 s for 200 (superlinear), ngspice 0.1 s for 50 and 0.2 s
-#: for 200 (0.7 s for 400).
-CHUNK = {"ngspice": 200, "gnucap": 40}
+PACKAGES = {name: sim.package for name, sim in targets.SIMULATORS.items()}
+#: Cards per simulator process (:attr:`modelgen.targets.Simulator.check_chunk`).
+CHUNK = {name: sim.check_chunk for name, sim in targets.SIMULATORS.items()}
 #: Seconds one simulator process (one chunk) may take before it is killed.
 DEFAULT_TIMEOUT = 120.0
 #: Circuit temperatures the check accepts [degC] (also the bounds of TNOM).
 TEMPERATURE_RANGE = (-200.0, 500.0)
 
-_GMIN_NGSPICE = 1e-12  # ngspice's default GMIN [S]; gnucap's default diode adds none
 _LABEL = "DMG"         # deck names: DMG0, DMG1, ... (the user's names never reach a simulator)
 
 # (low, low included, high, high included, unit, why: the first sentence goes into the error message)
@@ -167,7 +163,7 @@ PLAUSIBLE = {
 
 def runner(simulator):
     """The runner module of ``simulator`` (``available()``, ``simulate()``)."""
-    return importlib.import_module(f"{__package__}.{simulator}")
+    return targets.SIMULATORS[simulator].run_module()
 
 
 def installed(simulator):
@@ -337,13 +333,10 @@ def _user_names(messages, labels, cards):
 
 def _reference(card, simulator, temperature, file):
     """The evaluator's DC current and capacitance for one card [A], [F]."""
-    # SPICE's defaults for what the evaluator's temperature law needs and its DEFAULTS lack
-    # (ngspice manual, diode model table: EG 1.11 eV, XTI 3; gnucap's d_diode.model the same)
-    params = {"EG": 1.11, "XTI": 3.0, **card.params}
-    g = _GMIN_NGSPICE if simulator == "ngspice" else None
-    with np.errstate(all="ignore"):
-        i_ref, _ = evaluator.dc_current(params, DC_VOLTS, simulator, gmin=g, temperature_c=temperature)
-        c_ref = evaluator.capacitance(params, CAP_VOLTS, simulator, gmin=g, temperature_c=temperature)
+    params = card.params  # what a card leaves out takes the SPICE defaults (evaluator.DEFAULTS)
+    with np.errstate(all="ignore"):  # each simulator's own default GMIN, as its runner leaves it
+        i_ref, _ = evaluator.dc_current(params, DC_VOLTS, simulator, temperature_c=temperature)
+        c_ref = evaluator.capacitance(params, CAP_VOLTS, simulator, temperature_c=temperature)
     if not (np.all(np.isfinite(i_ref)) and np.all(np.isfinite(c_ref))):
         raise reader.CardSyntaxError(f".model {card.name}: its {simulator} equations give a non-finite "
                                      f"current or capacitance at {temperature:g} degC", file=file, row=card.line)
@@ -353,9 +346,8 @@ def _reference(card, simulator, temperature, file):
 def _simulate_chunk(simulator, chunk, temperature, timeout):
     library, labels = deck_cards(chunk)
     rs = {label: c.params.get("RS", 0.0) for label, c in zip(labels, chunk)}
-    kwargs = {"gmin": _GMIN_NGSPICE} if simulator == "ngspice" else {}
     return runner(simulator).simulate(library, labels, DC_VOLTS, CAP_VOLTS, rs=rs, temperature_c=temperature,
-                                      timeout=timeout, **kwargs), labels
+                                      timeout=timeout), labels
 
 
 def _run_chunk(pool, simulator, chunk, temperature, timeout, file):
