@@ -16,13 +16,11 @@ same device alone.
 from __future__ import annotations
 
 import csv
-import gc
 import json
 import math
 import os
 import re
 import tomllib
-from contextlib import contextmanager
 from dataclasses import dataclass
 
 import numpy as np
@@ -30,6 +28,7 @@ import numpy as np
 from . import description, extraction
 from .description import KEYS
 from .errors import InputError, Problems
+from .output import bulk
 from .textio import read_text
 from .units import apply_factor, parse_quantity, unit_factor
 
@@ -38,20 +37,7 @@ CHUNK = 50000
 _HEADER = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_.]*)\s*(?:\[\s*([^\]]*?)\s*\])?\s*$")
 
 
-@contextmanager
-def _bulk():
-    """Cyclic garbage collection paused while a table's millions of small objects are made.
-
-    They hold no reference cycles, and each collection would walk them all:
-    with the collector running, reading 100,000 rows takes about twice as long.
-    """
-    enabled = gc.isenabled()
-    gc.disable()
-    try:
-        yield
-    finally:
-        if enabled:
-            gc.enable()
+_bulk = bulk  # the gc pause (modelgen.output.bulk) under its old name here
 
 
 @dataclass
@@ -295,6 +281,107 @@ def read(path, **kw):
     return read_csv(path, **kw)
 
 
+def read_chunks(path, *, sets=None, name_pattern=None, rows=CHUNK):
+    """A table as a sequence of :class:`Table` pieces of at most about ``rows`` rows (bounded memory).
+
+    TOML and JSON lists, and CSV tables of at most ``rows`` lines, come whole
+    from :func:`read`. A longer CSV table is cut at record boundaries (never
+    inside a quoted cell) and each piece, behind the header line, goes
+    through :func:`read_csv`; its line numbers, names from ``name_pattern``
+    and file name are then made those of the whole table, and a model name
+    repeated from an earlier piece is a problem of the row, as in one pass.
+    """
+    path = str(path)
+    if path.lower().endswith((".toml", ".json")):
+        yield read(path, sets=sets, name_pattern=name_pattern)
+        return
+    text = read_text(path, "table")
+    quoted = '"' in text
+    lines = text.splitlines(keepends=True)
+    del text
+    if len(lines) <= rows + 1 or not lines[0].strip(" ,\t\r\n"):
+        del lines
+        yield read(path, sets=sets, name_pattern=name_pattern)
+        return
+    odd = [ln.count('"') % 2 for ln in lines] if quoted else None
+
+    def record_end(k):
+        """The first line index >= k at which a record can start (no quoted cell open)."""
+        if not quoted:
+            return k
+        parity = sum(odd[:k]) % 2
+        while parity and k < len(lines):
+            parity ^= odd[k]
+            k += 1
+        return k
+
+    h = record_end(1)
+    header = "".join(lines[:h])
+    seen = set()
+    before = 0  # data rows in earlier pieces
+    start = h
+    while start < len(lines):
+        end = record_end(min(start + rows, len(lines)))
+        piece = "".join(lines[start:end])
+        if piece.strip(" ,\t\r\n"):
+            table = _read_piece(path, header, piece, start - h, before, sets, name_pattern)
+            names = table.columns["name"]
+            upper = [str(x).upper() for x in names]
+            again = np.fromiter((u in seen for u in upper), bool, len(upper))
+            table.problems.add(again, "name", "model name {x!r} is used by an earlier row", {"x": names})
+            seen.update(upper)
+            before += len(table.lines)
+            yield table
+        start = end
+
+
+def _read_piece(path, header, piece, shift, before, sets, name_pattern):
+    """:func:`read_csv` over ``header`` and ``piece`` (some rows of ``path``), placed as in the whole table."""
+    import copy
+
+    text = header + piece
+    fd = None
+    if hasattr(os, "memfd_create"):
+        fd = os.memfd_create("modelgen-piece")
+        os.write(fd, text.encode("utf-8"))
+        name = f"/proc/self/fd/{fd}"
+    else:  # pragma: no cover - no memfd: a named temporary file
+        import tempfile
+
+        with tempfile.NamedTemporaryFile("w", encoding="utf-8", suffix=".csv", delete=False) as fh:
+            fh.write(text)
+            name = fh.name
+    try:
+        table = read_csv(name, sets=sets, name_pattern=name_pattern)
+    except InputError as e:
+        e = copy.copy(e)
+        if e.file == name:
+            e.file = path
+        if e.row is not None:
+            e.row += shift
+        raise e from None
+    finally:
+        if fd is not None:
+            os.close(fd)
+        else:  # pragma: no cover
+            os.unlink(name)
+    table.file = path
+    table.lines = table.lines + shift
+    p = table.problems
+    p.sources = (path,) * p.n
+    p.rows = tuple(None if r is None else r + shift for r in p.rows)
+    if name_pattern and "name" not in _header_keys(header) and "name" not in (sets or {}):
+        table.columns["name"] = np.array([name_pattern.format(row=int(r), index=before + i)
+                                          for i, r in enumerate(table.lines)], dtype=object)
+    return table
+
+
+def _header_keys(header):
+    import io
+
+    return {c.split("[")[0].strip() for c in next(csv.reader(io.StringIO(header.lstrip("\ufeff"))))}
+
+
 def derive(table: Table, *, chunk=CHUNK, progress=None):
     """The physics of every row of ``table``, chunk by chunk (see :func:`_derive`)."""
     with _bulk():
@@ -450,9 +537,37 @@ def _cells(v, cache=None):
 def summary_texts(cols, cache=None):
     """The summary as (CSV text, the cells of each column) for :func:`summary_json` to reuse."""
     cells = {k: _cells(v, cache) for k, v in cols.items()}
+    return _csv_header(cols) + _csv_rows(cells), cells
+
+
+def _csv_header(cols):
+    return ",".join(cols) + "\n"
+
+
+def _csv_rows(cells):
     # the cells are numbers, true/false, SPICE identifiers or words: no quoting needed
-    body = "\n".join(map(",".join, zip(*cells.values())))
-    return ",".join(cols) + "\n" + body + "\n", cells
+    return "\n".join(map(",".join, zip(*cells.values()))) + "\n"
+
+
+def _json_items(v, cells):
+    """One column's JSON list items without brackets, and the separator that joins two runs of them."""
+    kind = np.asarray(v).dtype.kind
+    if kind in "fi":
+        return ",".join([x or "null" for x in cells] if "" in cells else cells), ","
+    if kind == "b":
+        return ",".join(cells), ","
+    return json.dumps(cells)[1:-1], ", "
+
+
+def _json_text(rows, stats, skipped, columns):
+    """The summary JSON from ``columns``: ``(key, iterable of text pieces)`` each making one list."""
+    head = json.dumps({"rows": rows, "statistics": stats, "skipped": skipped}, indent=1, allow_nan=False)
+    yield head[:-2] + ',\n "columns": {\n  '
+    for j, (k, pieces) in enumerate(columns):
+        yield (",\n  " if j else "") + json.dumps(k) + ": ["
+        yield from pieces
+        yield "]"
+    yield "\n }\n}\n"
 
 
 def statistics(cols):
@@ -480,20 +595,8 @@ def summary_json(cols, stats, skipped, cells=None):
     repr, valid JSON); non-finite ones as null.
     """
     cells = cells or {k: _cells(v) for k, v in cols.items()}
-    parts = []
-    for k, v in cols.items():
-        kind = np.asarray(v).dtype.kind
-        if kind in "fi":
-            c = cells[k]
-            items = "[" + ",".join([x or "null" for x in c] if "" in c else c) + "]"
-        elif kind == "b":
-            items = "[" + ",".join(cells[k]) + "]"
-        else:
-            items = json.dumps(cells[k])
-        parts.append(f"{json.dumps(k)}: {items}")
-    head = json.dumps({"rows": len(cols["name"]), "statistics": stats, "skipped": skipped}, indent=1,
-                      allow_nan=False)
-    return head[:-2] + ',\n "columns": {\n  ' + ",\n  ".join(parts) + "\n }\n}\n"
+    columns = [(k, [_json_items(v, cells[k])[0]]) for k, v in cols.items()]
+    return "".join(_json_text(len(cols["name"]), stats, skipped, columns))
 
 
 def corner_rows(result, spec):
@@ -536,99 +639,270 @@ def corner_rows(result, spec):
     return out
 
 
-#: Share of the library's cards filled by the second process when the outputs are made in parallel;
-#: it makes the summary, about as much work as filling all the cards, so it takes none of them.
-CHILD_SHARE = 0.0
+#: Rows below which a chunk's summary is not worth a second process.
+FORK_MIN = 5000
+#: The body of the library is spliced in here (a text that cannot occur in a rendered library).
+_BODY = "\x00modelgen body\x00"
+#: The derived quantities the library's header and corner cards use (besides params and findings).
+_CARD_DERIVED = ("temperature", "junction_area", "bottom_area")
 
 
-def write_outputs(result, paths, *, dialect, title, extra, section, corner_cards, skipped, parallel=True):
-    """Make and write a lot's library and summary files, all or none (see :func:`_write_outputs`)."""
-    with _bulk():
-        _write_outputs(result, paths, dialect=dialect, title=title, extra=extra, section=section,
-                       corner_cards=corner_cards, skipped=skipped, parallel=parallel)
+def _rows(result, lo, hi):
+    """The devices ``lo:hi`` of ``result`` as a Result of their own."""
+    sl = slice(lo, hi)
+    derived = {k: ({kk: vv[sl] for kk, vv in v.items()} if isinstance(v, dict) else v[sl])
+               for k, v in result.derived.items()}
+    findings = [extraction.Finding(f.mask[sl], f.text, {k: (v[sl] if isinstance(v, np.ndarray) else v)
+                                                         for k, v in f.values.items()})
+                for f in result.findings]
+    return extraction.Result(device=result.device.take(sl), params={k: v[sl] for k, v in result.params.items()},
+                             derived=derived, findings=findings, sources=result.sources)
 
 
-def _write_outputs(result, paths, *, dialect, title, extra, section, corner_cards, skipped, parallel=True):
-    """Make and write a lot's library and summary files, all or none.
+def _skeleton(parts):
+    """One Result over every good row for the library's header and corner cards, from chunk parts.
+
+    Holds the names, lines, sources, parameters, the derived quantities the
+    cards use, and the findings; the other input columns of the device are
+    zeros that take no memory (nothing downstream of the physics reads them).
+    """
+    from dataclasses import fields
+
+    from .device import Device, Side
+
+    n = sum(len(p.device) for p in parts)
+    zero = np.broadcast_to(np.float64(0.0), (n,))
+
+    def tuples(name):
+        vals = [getattr(p.device, name) for p in parts]
+        return tuple(x for v in vals for x in v) if len(vals) > 1 else vals[0]
+
+    def empty(cls):
+        return cls(**{f.name: (empty(Side) if f.type in ("Side", Side) else zero) for f in fields(cls)})
+
+    device = empty(Device)
+    for name in ("name", "material", "source", "line"):
+        setattr(device, name, tuples(name))
+    first = parts[0]
+    params = {k: np.concatenate([p.params[k] for p in parts]) for k in first.params}
+    derived = {k: np.concatenate([p.derived[k] for p in parts]) for k in _CARD_DERIVED}
+    findings = []
+    for i, f0 in enumerate(first.findings):
+        values = {k: (np.concatenate([p.findings[i].values[k] for p in parts]) if isinstance(v, np.ndarray) else v)
+                  for k, v in f0.values.items()}
+        findings.append(extraction.Finding(np.concatenate([p.findings[i].mask for p in parts]), f0.text, values))
+    return extraction.Result(device=device, params=params, derived=derived, findings=findings,
+                             sources=first.sources)
+
+
+def _slim(result):
+    """What :func:`_skeleton` needs of a chunk's result."""
+    return extraction.Result(device=result.device, params=result.params,
+                             derived={k: result.derived[k] for k in _CARD_DERIVED}, findings=result.findings,
+                             sources=result.sources)
+
+
+def _summary_part(result, cache, first):
+    """A chunk's summary: its CSV text (with the header when ``first``), its JSON items per column, and
+    its numeric columns for the statistics."""
+    cols = summary_columns(result)
+    cells = {k: _cells(v, cache) for k, v in cols.items()}
+    csv_text = (_csv_header(cols) if first else "") + _csv_rows(cells)
+    items = [(k,) + _json_items(v, cells[k]) for k, v in cols.items()]
+    return csv_text, items
+
+
+def _numeric(cols):
+    return {k: v for k, v in cols.items() if k != "line" and np.asarray(v).dtype.kind in "fi"}
+
+
+class LotWriter:
+    """A lot's library and summary files, made chunk by chunk and replaced all together or not at all.
+
+    Feed it the good rows chunk by chunk (:meth:`add`), then :meth:`finish`
+    with the library's title and corner cards. Card text and summary text
+    are made one chunk at a time (bounded memory); the library's body and
+    the summary's JSON columns wait in scratch files until the header, which
+    depends on every row, is known. The bytes are the same whatever the
+    chunks and whether or not a second process helps (``fork``).
 
     Parameters
     ----------
-    result : Result
-        The good rows.
     paths : dict
         ``{"library": path, "csv": path, "json": path}``.
-    parallel : bool
-        On POSIX, with a large table, a forked second process makes the
-        summary and a share (:data:`CHILD_SHARE`) of the cards while this one
-        makes the rest: two cores, the same bytes.
-
-    Every file goes to a temporary file beside its target; only when all are
-    written are they renamed into place.
+    dialect : str
+    inputs : sequence of paths
+        Files read for this lot; no output may be one of them.
+    fork : bool
+        On POSIX, make each chunk's summary in a forked second process while
+        this one fills the cards and goes on with the next chunk. Off by
+        default: a library call never forks unless asked; the command line
+        asks.
+    fork_min : int
+        Chunks smaller than this are not worth a second process (default :data:`FORK_MIN`).
+    signals : bool
+        Clean up on SIGTERM/SIGHUP (see :class:`modelgen.output.Commit`).
+    keep : bool
+        Keep what the header and corner cards need of each chunk (off when
+        the caller holds the whole Result and passes it to :meth:`finish`).
     """
-    from . import cards
-    from .textio import temporary_beside
 
-    n = len(result)
-    cols = summary_columns(result)
-    temps = {k: temporary_beside(p) for k, p in paths.items()}
-    part = temporary_beside(paths["library"])
+    def __init__(self, paths, *, dialect, inputs=(), fork=False, fork_min=None, signals=False, keep=True):
+        from .output import Commit
 
-    def write(path, text):
-        with open(path, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
+        self.commit = Commit(paths, inputs=inputs, signals=signals)
+        self.dialect = dialect
+        self.fork = fork
+        self.fork_min = FORK_MIN if fork_min is None else fork_min
+        self.keep = keep
+        self.parts = []      # slim chunk results (keep=True)
+        self.numeric = []    # per chunk: the numeric summary columns, for the statistics
+        self.pieces = []     # per chunk: (file, offset, [(key, length, separator)]) of its JSON items
+        self.rows = 0
+        self.pending = None  # (Beside, part file name) of a chunk's summary being made in a second process
 
-    # the card columns are formatted once, before any fork: both processes use them, and the
-    # summary shares the columns it has in common with the cards
-    cache = {}
-    columns, _ = cards.card_columns(result, dialect)
-    texts = [cards.format_numbers(v, cache) for _, v in columns]
-
-    def summary():
-        csv_text, cells = summary_texts(cols, cache)
-        write(temps["csv"], csv_text)
-        write(temps["json"], summary_json(cols, statistics(cols), skipped, cells))
-
-    def cards_of(lo, hi):
-        return cards.table_cards(result, dialect, rows=np.arange(lo, hi), texts=texts)[0]
-
-    try:
-        forking = parallel and hasattr(os, "fork") and n > 5000
-        split = int(n * (1 - CHILD_SHARE)) if forking else n
-        pid = os.fork() if forking else None
-        if pid == 0:  # the child: its share of the cards and the summary; leave without the parent's cleanup
-            code = 0
-            try:
-                if split < n:
-                    write(part, cards_of(split, n))
-                summary()
-            except BaseException:
-                code = 1
-            os._exit(code)
-        body = cards_of(0, split)
-        if pid:
-            _, status = os.waitpid(pid, 0)
-            if status == 0:
-                if split < n:
-                    with open(part, encoding="utf-8") as fh:
-                        body += fh.read()
-            else:  # the child failed: make its share here, where an error can be seen
-                body += cards_of(split, n)
-                summary()
-        else:
-            summary()
-        write(temps["library"], cards.table_library(result, dialect, title=title, extra=extra, section=section,
-                                                    corner_cards=corner_cards, body=body))
-    except BaseException:
-        for t in list(temps.values()):
-            try:
-                os.unlink(t)
-            except OSError:
-                pass
-        raise
-    finally:
+    def __enter__(self):
+        self.commit.__enter__()
         try:
-            os.unlink(part)
-        except OSError:
-            pass
-    for k, p in paths.items():
-        os.replace(temps[k], p)
+            self.body = self.commit.spool("library")
+            self.spool = self.commit.spool("json")
+        except BaseException as e:
+            self.commit.__exit__(type(e), e, e.__traceback__)
+            raise
+        return self
+
+    def __exit__(self, kind, value, tb):
+        if self.pending is not None:
+            self.pending[0].cancel()
+        for fh in (getattr(self, "body", None), getattr(self, "spool", None)) + tuple(f for f, _, _ in self.pieces):
+            if fh is not None and not fh.closed:
+                fh.close()
+        return self.commit.__exit__(kind, value, tb)
+
+    def add(self, result):
+        """Write the cards and the summary rows of ``result`` (the next chunk's good rows)."""
+        from . import cards
+        from .output import Beside
+
+        if result is None or not len(result):
+            return
+        with bulk():
+            cache = {}  # card columns formatted once, shared by the cards and the summary (and the child)
+            columns, _ = cards.card_columns(result, self.dialect)
+            texts = [cards.format_numbers(v, cache) for _, v in columns]
+            first = self.rows == 0
+            self._join()
+            if self.fork and len(result) >= self.fork_min:
+                name = self.commit.part("json")
+
+                def task():
+                    _write_part(name, *_summary_part(result, cache, first))
+
+                self.pending = (Beside(task, fork=True), name)
+            else:
+                csv_text, items = _summary_part(result, cache, first)
+                self.commit.write("csv", csv_text)
+                self._spool_items(self.spool, items)
+            self.body.write(cards.table_cards(result, self.dialect, texts=texts)[0].encode("utf-8"))
+            self.numeric.append(_numeric(summary_columns(result)))
+            if self.keep:
+                self.parts.append(_slim(result))
+            self.rows += len(result)
+
+    def _spool_items(self, fh, items):
+        offset = fh.tell()
+        lengths = []
+        for k, text, sep in items:
+            data = text.encode("utf-8")
+            fh.write(data)
+            lengths.append((k, len(data), sep))
+        self.pieces.append((fh, offset, lengths))
+
+    def _join(self):
+        """Wait for the second process's summary of the previous chunk and take its parts in."""
+        if self.pending is None:
+            return
+        beside, name = self.pending
+        self.pending = None
+        beside.join()
+        fh = open(name, "rb")
+        header = json.loads(fh.readline())
+        start = fh.tell()
+        self.commit.copy("csv", fh, start, header["csv"])
+        lengths = [(k, n, sep) for k, n, sep in header["items"]]
+        self.pieces.append((fh, start + header["csv"], lengths))
+
+    def result(self):
+        """One Result over all good rows so far, for the header and :func:`corner_rows` (not for physics)."""
+        return _skeleton(self.parts)
+
+    def finish(self, *, title, extra=(), section=None, corner_cards=(), skipped=(), result=None):
+        """Write the library's header and corner cards and the summary JSON, then replace all files.
+
+        ``result``: the whole Result when the caller holds it (else the
+        chunks' skeleton, :meth:`result`).
+        """
+        from . import cards
+
+        if not self.rows:
+            raise ValueError("no rows to write")
+        with bulk():
+            self._join()
+            numeric = {k: np.concatenate([c[k] for c in self.numeric]) for k in self.numeric[0]}
+            stats = statistics(numeric)
+            del numeric
+            self._write_json(stats, list(skipped))
+            whole = result if result is not None else self.result()
+            text = cards.table_library(whole, self.dialect, title=title, extra=extra, section=section,
+                                       corner_cards=corner_cards, body=_BODY)
+            head, tail = text.split(_BODY)
+            self.commit.write("library", head)
+            self.commit.copy("library", self.body)
+            self.commit.write("library", tail)
+            self.commit.commit()
+
+    def _write_json(self, stats, skipped):
+        keys = [k for k, _, _ in self.pieces[0][2]]
+
+        def pieces(j):
+            for n, (fh, offset, lengths) in enumerate(self.pieces):
+                start = offset + sum(length for _, length, _ in lengths[:j])
+                _, length, sep = lengths[j]
+                if n:
+                    yield sep
+                yield (fh, start, length)
+
+        def columns():
+            for j, k in enumerate(keys):
+                yield k, pieces(j)
+
+        for piece in _json_text(self.rows, stats, skipped, columns()):
+            if isinstance(piece, tuple):
+                self.commit.copy("json", *piece)
+            else:
+                self.commit.write("json", piece)
+
+
+def _write_part(name, csv_text, items):
+    """A chunk's summary in a file: a JSON line with the lengths, then the CSV text and the JSON items."""
+    data = [csv_text.encode("utf-8")] + [text.encode("utf-8") for _, text, _ in items]
+    head = {"csv": len(data[0]), "items": [(k, len(d), sep) for (k, _, sep), d in zip(items, data[1:])]}
+    with open(name, "wb") as fh:
+        fh.write(json.dumps(head).encode("ascii") + b"\n")
+        for d in data:
+            fh.write(d)
+
+
+def write_outputs(result, paths, *, dialect, title, extra, section, corner_cards, skipped, parallel=False,
+                  chunk=CHUNK, inputs=()):
+    """Make and write a lot's library and summary files, all or none, ``chunk`` rows at a time.
+
+    ``result``: the good rows; ``paths``: ``{"library", "csv", "json"}``.
+    ``parallel``: let a forked second process make the summaries (see
+    :class:`LotWriter`); off by default, so a library call never forks.
+    """
+    with LotWriter(paths, dialect=dialect, inputs=inputs, fork=parallel, keep=False) as w:
+        for lo in range(0, len(result), chunk):
+            w.add(_rows(result, lo, min(lo + chunk, len(result))) if len(result) > chunk else result)
+        w.finish(title=title, extra=extra, section=section, corner_cards=corner_cards, skipped=skipped,
+                 result=result)
