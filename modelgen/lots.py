@@ -285,46 +285,56 @@ def read_chunks(path, *, sets=None, name_pattern=None, rows=CHUNK):
     """A table as a sequence of :class:`Table` pieces of at most about ``rows`` rows (bounded memory).
 
     TOML and JSON lists, and CSV tables of at most ``rows`` lines, come whole
-    from :func:`read`. A longer CSV table is cut at record boundaries (never
-    inside a quoted cell) and each piece, behind the header line, goes
-    through :func:`read_csv`; its line numbers, names from ``name_pattern``
-    and file name are then made those of the whole table, and a model name
-    repeated from an earlier piece is a problem of the row, as in one pass.
+    from :func:`read`. A longer CSV table is cut at line ends outside quoted
+    cells and each piece, behind the header, goes through :func:`read_csv`;
+    its line numbers, names from ``name_pattern`` and file name are then made
+    those of the whole table, and a model name repeated from an earlier piece
+    is a problem of its row, as in one pass. A table with line breaks other
+    than LF and CRLF, or not UTF-8, is read whole (the reader's own counting
+    and messages).
     """
     path = str(path)
-    if path.lower().endswith((".toml", ".json")):
+    whole = path.lower().endswith((".toml", ".json"))
+    if not whole:
+        try:
+            with open(path, "rb") as fh:
+                data = fh.read()
+        except OSError:
+            data = b""
+        whole = data.count(b"\n") <= rows + 1 or _odd_breaks(data)
+    if whole:
         yield read(path, sets=sets, name_pattern=name_pattern)
         return
-    text = read_text(path, "table")
-    quoted = '"' in text
-    lines = text.splitlines(keepends=True)
-    del text
-    if len(lines) <= rows + 1 or not lines[0].strip(" ,\t\r\n"):
-        del lines
-        yield read(path, sets=sets, name_pattern=name_pattern)
-        return
-    odd = [ln.count('"') % 2 for ln in lines] if quoted else None
 
-    def record_end(k):
-        """The first line index >= k at which a record can start (no quoted cell open)."""
-        if not quoted:
-            return k
-        parity = sum(odd[:k]) % 2
-        while parity and k < len(lines):
-            parity ^= odd[k]
-            k += 1
-        return k
+    def record_end(pos, count):
+        """Past the ``count``-th line end from ``pos``, moved on while a quoted cell is open."""
+        end = pos
+        for _ in range(count):
+            k = data.find(b"\n", end)
+            if k < 0:
+                return len(data)
+            end = k + 1
+        while data.count(b'"', pos, end) % 2 and end < len(data):
+            k = data.find(b"\n", end)
+            end = len(data) if k < 0 else k + 1
+        return end
 
-    h = record_end(1)
-    header = "".join(lines[:h])
+    h = record_end(0, 1)
+    header = data[:h]
     seen = set()
-    before = 0  # data rows in earlier pieces
+    before = 0           # data rows in earlier pieces
+    line = data.count(b"\n", 0, h)  # lines before the piece
     start = h
-    while start < len(lines):
-        end = record_end(min(start + rows, len(lines)))
-        piece = "".join(lines[start:end])
-        if piece.strip(" ,\t\r\n"):
-            table = _read_piece(path, header, piece, start - h, before, sets, name_pattern)
+    while start < len(data):
+        end = record_end(start, rows)
+        piece = data[start:end]
+        try:
+            piece.decode("utf-8")
+        except UnicodeDecodeError:
+            yield read(path, sets=sets, name_pattern=name_pattern)  # raises the reader's own message
+            return
+        if piece.strip(b" ,\t\r\n"):
+            table = _read_piece(path, header, piece, line - header.count(b"\n"), before, sets, name_pattern)
             names = table.columns["name"]
             upper = [str(x).upper() for x in names]
             again = np.fromiter((u in seen for u in upper), bool, len(upper))
@@ -332,24 +342,33 @@ def read_chunks(path, *, sets=None, name_pattern=None, rows=CHUNK):
             seen.update(upper)
             before += len(table.lines)
             yield table
+        line += piece.count(b"\n")
         start = end
+
+
+def _odd_breaks(data):
+    """Line breaks other than LF and CRLF (str.splitlines counts them, a cut at LF does not)."""
+    return (data.count(b"\r") != data.count(b"\r\n")
+            or any(data.find(c) >= 0 for c in (b"\x0b", b"\x0c", b"\x1c", b"\x1d", b"\x1e", b"\xc2\x85",
+                                                  b"\xe2\x80\xa8", b"\xe2\x80\xa9")))
 
 
 def _read_piece(path, header, piece, shift, before, sets, name_pattern):
     """:func:`read_csv` over ``header`` and ``piece`` (some rows of ``path``), placed as in the whole table."""
     import copy
 
-    text = header + piece
     fd = None
     if hasattr(os, "memfd_create"):
         fd = os.memfd_create("modelgen-piece")
-        os.write(fd, text.encode("utf-8"))
+        with open(fd, "wb", closefd=False) as fh:
+            fh.write(header)
+            fh.write(piece)
         name = f"/proc/self/fd/{fd}"
     else:  # pragma: no cover - no memfd: a named temporary file
         import tempfile
 
-        with tempfile.NamedTemporaryFile("w", encoding="utf-8", suffix=".csv", delete=False) as fh:
-            fh.write(text)
+        with tempfile.NamedTemporaryFile("wb", suffix=".csv", delete=False) as fh:
+            fh.write(header + piece)
             name = fh.name
     try:
         table = read_csv(name, sets=sets, name_pattern=name_pattern)
@@ -379,7 +398,8 @@ def _read_piece(path, header, piece, shift, before, sets, name_pattern):
 def _header_keys(header):
     import io
 
-    return {c.split("[")[0].strip() for c in next(csv.reader(io.StringIO(header.lstrip("\ufeff"))))}
+    text = header.decode("utf-8", "replace").lstrip("\ufeff")
+    return {c.split("[")[0].strip() for c in next(csv.reader(io.StringIO(text)))}
 
 
 def derive(table: Table, *, chunk=CHUNK, progress=None):
@@ -663,43 +683,52 @@ def _skeleton(parts):
     """One Result over every good row for the library's header and corner cards, from chunk parts.
 
     Holds the names, lines, sources, parameters, the derived quantities the
-    cards use, and the findings; the other input columns of the device are
-    zeros that take no memory (nothing downstream of the physics reads them).
+    cards use, and the findings; the device's input columns are zeros that
+    take no memory (nothing downstream of the physics reads them). The parts
+    are emptied as their columns are joined, so memory is not doubled.
     """
     from dataclasses import fields
 
     from .device import Device, Side
 
-    n = sum(len(p.device) for p in parts)
+    n = sum(len(p.names) for p in parts)
     zero = np.broadcast_to(np.float64(0.0), (n,))
-
-    def tuples(name):
-        vals = [getattr(p.device, name) for p in parts]
-        return tuple(x for v in vals for x in v) if len(vals) > 1 else vals[0]
 
     def empty(cls):
         return cls(**{f.name: (empty(Side) if f.type in ("Side", Side) else zero) for f in fields(cls)})
 
+    def join(get):
+        vals = [get(p) for p in parts]
+        return np.concatenate(vals) if isinstance(vals[0], np.ndarray) else tuple(x for v in vals for x in v)
+
     device = empty(Device)
     for name in ("name", "material", "source", "line"):
-        setattr(device, name, tuples(name))
+        setattr(device, name, join(lambda p, name=name: p.device.pop(name)))
     first = parts[0]
-    params = {k: np.concatenate([p.params[k] for p in parts]) for k in first.params}
-    derived = {k: np.concatenate([p.derived[k] for p in parts]) for k in _CARD_DERIVED}
+    params = {k: join(lambda p, k=k: p.params.pop(k)) for k in list(first.params)}
+    derived = {k: join(lambda p, k=k: p.derived.pop(k)) for k in list(first.derived)}
     findings = []
     for i, f0 in enumerate(first.findings):
-        values = {k: (np.concatenate([p.findings[i].values[k] for p in parts]) if isinstance(v, np.ndarray) else v)
+        values = {k: (join(lambda p, i=i, k=k: p.findings[i].values[k]) if isinstance(v, np.ndarray) else v)
                   for k, v in f0.values.items()}
-        findings.append(extraction.Finding(np.concatenate([p.findings[i].mask for p in parts]), f0.text, values))
+        findings.append(extraction.Finding(join(lambda p, i=i: p.findings[i].mask), f0.text, values))
+        for p in parts[1:]:
+            p.findings[i] = None
     return extraction.Result(device=device, params=params, derived=derived, findings=findings,
                              sources=first.sources)
 
 
-def _slim(result):
-    """What :func:`_skeleton` needs of a chunk's result."""
-    return extraction.Result(device=result.device, params=result.params,
-                             derived={k: result.derived[k] for k in _CARD_DERIVED}, findings=result.findings,
-                             sources=result.sources)
+class _Part:
+    """What :func:`_skeleton` needs of a chunk's result (not its input columns)."""
+
+    def __init__(self, result):
+        d = result.device
+        self.device = {"name": d.name, "material": d.material, "source": d.source, "line": d.line}
+        self.names = d.name
+        self.params = dict(result.params)
+        self.derived = {k: result.derived[k] for k in _CARD_DERIVED}
+        self.findings = list(result.findings)
+        self.sources = result.sources
 
 
 def _summary_part(result, cache, first):
@@ -755,7 +784,8 @@ class LotWriter:
         self.fork = fork
         self.fork_min = FORK_MIN if fork_min is None else fork_min
         self.keep = keep
-        self.parts = []      # slim chunk results (keep=True)
+        self.parts = []      # what the header needs of each chunk (keep=True)
+        self.whole = None    # those joined (:meth:`result`)
         self.numeric = []    # per chunk: the numeric summary columns, for the statistics
         self.pieces = []     # per chunk: (file, offset, [(key, length, separator)]) of its JSON items
         self.rows = 0
@@ -806,7 +836,7 @@ class LotWriter:
             self.body.write(cards.table_cards(result, self.dialect, texts=texts)[0].encode("utf-8"))
             self.numeric.append(_numeric(summary_columns(result)))
             if self.keep:
-                self.parts.append(_slim(result))
+                self.parts.append(_Part(result))
             self.rows += len(result)
 
     def _spool_items(self, fh, items):
@@ -833,8 +863,13 @@ class LotWriter:
         self.pieces.append((fh, start + header["csv"], lengths))
 
     def result(self):
-        """One Result over all good rows so far, for the header and :func:`corner_rows` (not for physics)."""
-        return _skeleton(self.parts)
+        """One Result over all good rows, for the header and :func:`corner_rows` (not for physics).
+
+        Made once, from the chunks kept so far, which it then replaces.
+        """
+        if self.whole is None:
+            self.whole, self.parts = _skeleton(self.parts), []
+        return self.whole
 
     def finish(self, *, title, extra=(), section=None, corner_cards=(), skipped=(), result=None):
         """Write the library's header and corner cards and the summary JSON, then replace all files.
@@ -849,6 +884,7 @@ class LotWriter:
         with bulk():
             self._join()
             numeric = {k: np.concatenate([c[k] for c in self.numeric]) for k in self.numeric[0]}
+            self.numeric = []
             stats = statistics(numeric)
             del numeric
             self._write_json(stats, list(skipped))
