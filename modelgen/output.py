@@ -22,6 +22,7 @@ in (the command line does; a library call never forks unless asked).
 
 from __future__ import annotations
 
+import errno
 import gc
 import hashlib
 import os
@@ -234,9 +235,26 @@ class Commit:
         try:
             fh.flush()
             spool.flush()
-            spool.seek(start)
-            shutil.copyfileobj(spool if length is None else _Limited(spool, length), fh.buffer, 1 << 20)
-            fh.buffer.flush()
+            if length is None:
+                length = os.fstat(spool.fileno()).st_size - start
+            if hasattr(os, "copy_file_range"):  # in the kernel, no copy through this process
+                src, dst, off = spool.fileno(), fh.fileno(), start
+                while length > 0:
+                    try:
+                        k = os.copy_file_range(src, dst, length, off)
+                    except OSError as e:
+                        if e.errno in (errno.EXDEV, errno.ENOSYS, errno.EINVAL, errno.EOPNOTSUPP) and off == start:
+                            break  # not between these files: copy through this process below
+                        raise
+                    if k == 0:
+                        raise OSError(errno.EIO, "copy ended early")
+                    off += k
+                    length -= k
+                start = off
+            if length > 0:
+                spool.seek(start)
+                shutil.copyfileobj(_Limited(spool, length), fh.buffer, 1 << 20)
+                fh.buffer.flush()
         except OSError as e:
             raise self._error(role, e) from None
 
