@@ -828,7 +828,9 @@ class LotWriter:
                 def task():
                     _write_part(name, *_summary_part(result, cache, first))
 
-                self.pending = (Beside(task, fork=True), name)
+                beside = Beside(task, fork=True)
+                self.pending = (beside, name)
+                beside.start()
             else:
                 csv_text, items = _summary_part(result, cache, first)
                 self.commit.write("csv", csv_text)
@@ -853,8 +855,8 @@ class LotWriter:
         if self.pending is None:
             return
         beside, name = self.pending
+        beside.join()  # an error or a signal while waiting leaves it pending, for __exit__ to end it
         self.pending = None
-        beside.join()
         fh = open(name, "rb")
         header = json.loads(fh.readline())
         start = fh.tell()

@@ -31,6 +31,7 @@ import secrets
 import shutil
 import signal
 import socket
+import sys
 import tempfile
 import threading
 from contextlib import contextmanager
@@ -396,6 +397,13 @@ def write_files(texts, *, inputs=(), signals=False):
         c.commit()
 
 
+_SIGNALS = (signal.SIGTERM, signal.SIGHUP, signal.SIGINT)
+
+
+def _checkpoint():
+    """A Python-level call: a signal already caught runs its handler here (at the call's start)."""
+
+
 class Beside:
     """Run ``task()`` in a forked second process while this one works on (optional).
 
@@ -403,45 +411,61 @@ class Beside:
     no fork, :meth:`join` runs the task here. A child that fails is not
     trusted: :meth:`join` runs the task again here, where its error can be
     seen. The task must write its results to files; the child leaves with
-    ``os._exit`` and never runs the parent's clean-up.
+    ``os._exit`` and never runs the parent's clean-up. Keep the object
+    before calling :meth:`start`, so that :meth:`cancel` can end the child
+    whatever happens next.
     """
 
     def __init__(self, task, *, fork=False):
         self.task = task
+        self.fork = fork and hasattr(os, "fork")
         self.pid = None
-        if fork and hasattr(os, "fork"):
-            for stream in (getattr(os.sys, "stdout", None), getattr(os.sys, "stderr", None)):
-                try:
-                    stream.flush()
-                except (AttributeError, OSError, ValueError):
-                    pass
+
+    def start(self):
+        """Fork the second process (when asked to), with SIGTERM, SIGHUP and SIGINT held meanwhile.
+
+        A signal that arrived during the fork would otherwise run its handler
+        inside the interpreter's after-fork hooks, where the exception it
+        raises is dropped; held, it arrives after the fork, in ordinary code.
+        """
+        if not self.fork:
+            return self
+        for stream in (sys.stdout, sys.stderr):
+            try:
+                stream.flush()
+            except (AttributeError, OSError, ValueError):
+                pass
+        held = signal.pthread_sigmask(signal.SIG_BLOCK, _SIGNALS)
+        try:
+            _checkpoint()
             pid = os.fork()
-            if pid == 0:
-                code = 0
-                try:
-                    for s in (signal.SIGTERM, signal.SIGHUP, signal.SIGINT):
-                        signal.signal(s, signal.SIG_DFL)
-                    task()
-                except BaseException:
-                    code = 1
-                os._exit(code)
-            self.pid = pid
+        except BaseException:
+            signal.pthread_sigmask(signal.SIG_SETMASK, held)
+            raise
+        if pid == 0:
+            code = 0
+            try:
+                for s in _SIGNALS:
+                    signal.signal(s, signal.SIG_DFL)
+                signal.pthread_sigmask(signal.SIG_SETMASK, held)
+                self.task()
+            except BaseException:
+                code = 1
+            os._exit(code)
+        self.pid = pid
+        signal.pthread_sigmask(signal.SIG_SETMASK, held)
+        return self
 
     def join(self):
         """Wait for the task (or run it here); return when its results are in place."""
         if self.pid is None:
             self.task()
             return
-        pid, self.pid = self.pid, None
-        while True:
-            try:
-                _, status = os.waitpid(pid, 0)
-                break
-            except ChildProcessError:
-                status = 1
-                break
-            except InterruptedError:
-                continue
+        try:
+            _, status = os.waitpid(self.pid, 0)  # a signal here leaves self.pid set, for cancel()
+        except ChildProcessError:
+            status = 1
+        self.pid = None
         if status != 0:
             self.task()
 
