@@ -153,6 +153,9 @@ def check_targets(paths, inputs=()):
         real = os.path.realpath(path)
         if os.path.isdir(path):
             raise InputError(f"is a folder, not a file to write the {_label(role)} to", file=path)
+        if os.path.exists(path) and not os.path.isfile(path):
+            raise InputError(f"is not a regular file (a device, a pipe or a socket) to write the {_label(role)} "
+                             f"to; give a file name", file=path)
         folder = os.path.dirname(os.path.abspath(path))
         if not os.path.isdir(folder):
             raise InputError(f"cannot write the {_label(role)}: folder {folder} does not exist", file=path)
@@ -380,7 +383,11 @@ def _lock_folders(paths):
         for folder in sorted({os.path.dirname(os.path.abspath(p)) for p in paths}):
             fd = os.open(folder, os.O_RDONLY)
             fds.append(fd)
-            fcntl.flock(fd, fcntl.LOCK_EX)
+            try:
+                fcntl.flock(fd, fcntl.LOCK_EX)
+            except OSError as e:  # a file system without flock on folders: commit unlocked there
+                if e.errno not in (errno.ENOLCK, errno.EOPNOTSUPP, errno.EBADF, errno.EINVAL):
+                    raise
     except BaseException:
         for fd in fds:
             os.close(fd)

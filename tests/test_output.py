@@ -127,6 +127,14 @@ def test_library_path_a_folder_is_one_line(tmp_path):
                    tmp_path / "no" / "x.lib")
 
 
+def test_an_output_that_is_a_device_or_a_pipe_is_refused_and_left_alone(tmp_path):
+    fifo = tmp_path / "pipe"
+    os.mkfifo(fifo)
+    one_line_error(run("lots", LOT, "-o", fifo), fifo)
+    one_line_error(run("card", ROOT / "examples" / "photodiode.toml", "-o", fifo), fifo)
+    assert fifo.is_fifo() and sorted(p.name for p in tmp_path.iterdir()) == ["pipe"]
+
+
 # --- defect 18: two outputs that are one file, an output that is the input ----------------------------
 
 def test_outputs_that_are_one_file_or_the_input_are_refused(tmp_path):
