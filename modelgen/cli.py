@@ -432,7 +432,11 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
             whole = writer.result()
             corner_cards = []
             if corner_spec:
-                for section, i, pct in lots.corner_rows(whole, corner_spec):
+                try:
+                    chosen = lots.corner_rows(whole, corner_spec)
+                except InputError as e:
+                    _fail(str(e))
+                for section, i, pct in chosen:
                     corner_cards.append((section, corner_name, i,
                                          f"corner {section}: the row at the {pct:.4g} th percentile of IS "
                                          f"({whole.device.name[i]}), a real row so its parameters stay consistent"))

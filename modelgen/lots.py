@@ -637,18 +637,18 @@ def corner_rows(result, spec):
         try:
             k = float(spec[:-5])
         except ValueError:
-            raise InputError(f"--corners {spec!r}: write e.g. 3sigma", key="--corners") from None
+            raise InputError(f"{spec!r}: write e.g. 3sigma", key="--corners") from None
         if not k > 0:
-            raise InputError("--corners: sigma must be positive", key="--corners")
+            raise InputError("sigma must be positive", key="--corners")
         pcts = [100 * norm.cdf(-k), 50.0, 100 * norm.cdf(k)]
     else:
         try:
             pcts = [float(x) for x in spec.split(",")]
         except ValueError:
-            raise InputError(f"--corners {spec!r}: give three percentiles, e.g. 5,50,95, or Ksigma",
+            raise InputError(f"{spec!r}: give three percentiles, e.g. 5,50,95, or Ksigma",
                              key="--corners") from None
         if len(pcts) != 3 or not (0 <= pcts[0] < pcts[1] < pcts[2] <= 100):
-            raise InputError("--corners: three increasing percentiles within 0-100 (slow, typical, fast)",
+            raise InputError("three increasing percentiles within 0-100 (slow, typical, fast)",
                              key="--corners")
     order = np.argsort(result.params["IS"], kind="stable")
     n = len(order)

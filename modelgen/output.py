@@ -109,10 +109,6 @@ def sweep(path):
                 pass
 
 
-#: Temporary files of this process not yet renamed or removed (for the signal clean-up).
-_LIVE = set()
-
-
 class _Terminated(SystemExit):
     """SIGTERM or SIGHUP arrived: leave through the clean-up, exit status 128 + signal."""
 
@@ -126,7 +122,6 @@ def _unlink(path):
         os.unlink(path)
     except OSError:
         pass
-    _LIVE.discard(path)
 
 
 LABELS = {"csv": "summary CSV", "json": "summary JSON"}
@@ -215,7 +210,6 @@ class Commit:
                     fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, mode)
                 except OSError as e:
                     raise self._error(role, e) from None
-                _LIVE.add(tmp)
                 self.temps[role] = tmp
                 self.handles[role] = os.fdopen(fd, "w", encoding="utf-8", newline="\n")
         except BaseException:
@@ -278,7 +272,6 @@ class Commit:
             os.close(os.open(name, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
         except OSError as e:
             raise self._error(role or next(iter(self.paths)), e) from None
-        _LIVE.add(name)
         self.temps[f"part:{name}"] = name
         return name
 
@@ -311,14 +304,12 @@ class Commit:
                         os.link(self.paths[role], bak)
                     except OSError:
                         continue  # no hard links here: this target cannot be rolled back
-                    _LIVE.add(bak)
                     backups[role] = bak
             for role in roles:
                 try:
                     os.replace(self.temps[role], self.paths[role])
                 except OSError as e:
                     raise self._error(role, e) from None
-                _LIVE.discard(self.temps[role])
                 done.append(role)
         except BaseException:
             for role in done:  # put back what was replaced; remove what was new

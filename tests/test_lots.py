@@ -189,3 +189,11 @@ def test_library_of_1000_rows_loads_in_ngspice(tmp_path):
     res = ngspice.simulate(text, names, np.array([0.4, 0.5]), np.array([]), timeout=300)
     assert all(res[nm]["messages"] == [] for nm in names)
     assert all(np.all(res[nm]["current"] > 0) for nm in names)
+
+
+@pytest.mark.parametrize("spec", ["5,50", "5,x", "0sigma", "xsigma"])
+def test_bad_corner_spec_is_one_line_naming_the_option_once(tmp_path, spec):
+    r = run("lots", ROOT / "examples" / "lot_table.csv", "-o", tmp_path / "c.lib", "--dialect", "ngspice",
+            "--corners", spec)
+    assert r.exit_code == 2 and len(r.stderr.splitlines()) == 1 and r.stderr.count("--corners") == 1, r.stderr
+    assert list(tmp_path.iterdir()) == []
