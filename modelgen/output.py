@@ -367,8 +367,10 @@ class _Limited:
 
 def _lock_folders(paths):
     """Exclusive locks (flock) on the folders of ``paths``, in a fixed order; the open descriptors."""
-    import fcntl
-
+    try:
+        import fcntl
+    except ImportError:  # pragma: no cover - no flock here (Windows): commit unlocked
+        return []
     fds = []
     try:
         for folder in sorted({os.path.dirname(os.path.abspath(p)) for p in paths}):
