@@ -20,7 +20,6 @@ import numpy as np
 
 from . import __version__, cards, description, extraction, targets
 from .errors import InputError
-from .textio import write_atomic
 
 EXIT_INPUT = 2
 EXIT_MISMATCH = 1
@@ -29,29 +28,51 @@ EXIT_SKIPPED = 4
 
 
 class _Clock:
-    """With MODELGEN_TIMING=1 in the environment, stage times on stderr (for benchmarks)."""
+    """With MODELGEN_TIMING=1 in the environment, time per stage on stderr (for benchmarks)."""
 
     def __init__(self):
         import time
 
         self.now = time.perf_counter
-        self.last = self.now()
         self.on = os.environ.get("MODELGEN_TIMING") == "1"
+        self.stages = {}
 
-    def __call__(self, stage):
+    def call(self, stage, fn, *args, **kw):
+        """``fn(*args, **kw)``, its time added to ``stage``."""
         t = self.now()
-        if self.on:
-            click.echo(f"modelgen: timing: {stage} {t - self.last:.3f} s", err=True)
-        self.last = t
-
-
-def _emit(text, output):
-    """The text to ``output`` (atomically), or to stdout when there is none."""
-    if output:
         try:
-            write_atomic(output, text)
-        except OSError as e:
-            _fail(f"{output}: cannot write: {e.strerror}")
+            return fn(*args, **kw)
+        finally:
+            self.stages[stage] = self.stages.get(stage, 0.0) + self.now() - t
+
+    def timed(self, stage, iterable):
+        """The items of ``iterable``, the time spent making them added to ``stage``."""
+        it = iter(iterable)
+        while True:
+            t = self.now()
+            try:
+                item = next(it)
+            except StopIteration:
+                self.stages[stage] = self.stages.get(stage, 0.0) + self.now() - t
+                return
+            self.stages[stage] = self.stages.get(stage, 0.0) + self.now() - t
+            yield item
+
+    def report(self):
+        if self.on:
+            for stage, t in self.stages.items():
+                click.echo(f"modelgen: timing: {stage} {t:.3f} s", err=True)
+
+
+def _emit(text, output, inputs=()):
+    """The text to ``output`` (atomically, never over an input), or to stdout when there is none."""
+    if output:
+        from .output import write_files
+
+        try:
+            write_files({output: text}, inputs=inputs, signals=True)
+        except InputError as e:
+            _fail(str(e))
     else:
         click.echo(text, nl=False)
 
@@ -71,6 +92,17 @@ class _Dialect(click.ParamType):
 
 
 DIALECT = _Dialect()
+
+
+def _check_output(output, inputs=()):
+    """Refuse a bad output path (a folder, a missing folder, an input) before any work: one line, exit 2."""
+    if output:
+        from .output import check_targets
+
+        try:
+            check_targets({"output": output}, inputs)
+        except InputError as e:
+            _fail(str(e))
 
 
 def _fail(message):
@@ -104,7 +136,7 @@ def main():
 @main.command("card")
 @click.argument("device_files", metavar="DEVICE.toml...", nargs=-1, required=True,
                 type=click.Path())
-@click.option("-o", "--output", type=click.Path(dir_okay=False, writable=True),
+@click.option("-o", "--output", type=click.Path(),
               help="Write to this file (atomically: a temporary file, then a rename) instead of stdout.")
 @click.option("--format", "fmt", type=click.Choice(["card", "json"]), default="card", show_default=True,
               help="card: SPICE .model text. json: parameters, derived quantities and warnings, all in SI units "
@@ -130,6 +162,7 @@ def card_command(device_files, output, fmt, dialect, section, quiet):
       modelgen card examples/thin_epi_rectifier.toml --format json -o rect.json
       modelgen card examples/*.toml --dialect ngspice --section typical -o demo.lib
     """
+    _check_output(output, device_files)
     loaded = []
     for f in device_files:
         try:
@@ -152,7 +185,7 @@ def card_command(device_files, output, fmt, dialect, section, quiet):
             for m in r.findings_for(0):
                 if m.severity != "note":
                     click.echo(f"modelgen: {prefix}{m.severity}: {m.text}", err=True)
-    _emit(text, output)
+    _emit(text, output, device_files)
 
 
 @main.command("check")
@@ -288,7 +321,7 @@ def _temperature_c(text, key):
                    "the fit with its worst errors in percent.")
 @click.option("--max-error", type=click.FloatRange(0, None, min_open=True), default=5.0, show_default=True,
               metavar="PERCENT", help="Warn when the fitted card misses the physics by more than this at a corner.")
-@click.option("-o", "--output", type=click.Path(dir_okay=False, writable=True),
+@click.option("-o", "--output", type=click.Path(),
               help="Write to this file (atomically) instead of stdout.")
 @click.option("-q", "--quiet", is_flag=True, help="Print only errors on stderr.")
 def corners_command(device_file, at, t_from, t_to, t_step, per_corner, dialect, fmt, max_error, output, quiet):
@@ -313,6 +346,7 @@ def corners_command(device_file, at, t_from, t_to, t_step, per_corner, dialect, 
     """
     from . import corners
 
+    _check_output(output, [device_file])
     at_c = [_temperature_c(a, "--at") for a in at]
     start = _temperature_c(t_from, "--from") if t_from is not None else None
     stop = _temperature_c(t_to, "--to") if t_to is not None else None
@@ -329,12 +363,12 @@ def corners_command(device_file, at, t_from, t_to, t_step, per_corner, dialect, 
     if not quiet:
         for line in r.fit_lines() + r.warnings():
             click.echo(f"modelgen: {line.strip()}", err=True)
-    _emit(text, output)
+    _emit(text, output, [device_file])
 
 
 @main.command("lots")
-@click.argument("table_file", metavar="TABLE", type=click.Path(dir_okay=False))
-@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False, writable=True),
+@click.argument("table_file", metavar="TABLE", type=click.Path())
+@click.option("-o", "--output", required=True, type=click.Path(),
               help="The library file to write (atomically, with the summary files).")
 @click.option("--set", "sets", multiple=True, metavar="KEY=VALUE",
               help="A constant column, e.g. --set temperature=\"27 degC\" --set n.lifetime=\"2 us\".")
@@ -385,69 +419,63 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
         if not eq:
             _fail(f"--set {item!r}: write KEY=VALUE")
         set_values[key.strip()] = value.strip()
-    try:
-        table = lots.read(table_file, sets=set_values, name_pattern=name_pattern)
-    except InputError as e:
-        _fail(str(e.located(file=table_file)))
-    n = len(table.lines)
-    clock("read")
-    show = not quiet and sys.stderr.isatty() and n > lots.CHUNK
-    try:
-        if show:
-            with click.progressbar(length=n, label="modelgen: physics", file=sys.stderr) as bar:
-                last = [0]
+    if corner_spec:
+        from .description import check_name
 
-                def progress(done):
-                    bar.update(done - last[0])
-                    last[0] = done
-
-                result, good = lots.derive(table, progress=progress)
-        else:
-            result, good = lots.derive(table)
-    except InputError as e:
-        _fail(str(e.located(file=table_file)))
-    errors = table.problems.errors()
-    clock("checks and physics")
-    if errors and not keep_going:
-        for e in errors:
-            click.echo(f"modelgen: error: {e}", err=True)
-        click.echo(f"modelgen: {len(np.unique([e.row for e in errors]))} of {n} rows are bad; nothing written "
-                   f"(--keep-going writes the good ones)", err=True)
-        sys.exit(EXIT_INPUT)
-    for e in errors:
-        click.echo(f"modelgen: skipped: {e}", err=True)
-    if result is None:
-        _fail(f"{table_file}: no good rows; nothing written")
-    skipped = [{"row": e.row, "key": e.key, "message": e.message} for e in errors]
-    corner_cards = []
-    try:
-        if corner_spec:
-            from .description import check_name
-
+        try:
             check_name(corner_name, key="--corner-name")
-            for section, i, pct in lots.corner_rows(result, corner_spec):
-                corner_cards.append((section, corner_name, i,
-                                     f"corner {section}: the row at the {_ordinal(pct)} percentile of IS "
-                                     f"({result.device.name[i]}), a real row so its parameters stay consistent"))
-        if corner_spec and not cards.DIALECTS[dialect].sections:
-            raise ValueError(f"the {dialect} dialect has no .lib sections")
-    except InputError as e:
-        _fail(str(e))
-    except ValueError as e:
-        _fail(f"{e}; --corners needs a dialect with .lib sections (ngspice)")
-    n_skipped = len(np.unique([e.row for e in errors])) if errors else 0
+        except InputError as e:
+            _fail(str(e))
+        if not cards.DIALECTS[dialect].sections:
+            _fail(f"the {dialect} dialect has no .lib sections; --corners needs a dialect with .lib sections "
+                  f"(ngspice)")
     prefix = summary_prefix or os.path.splitext(output)[0] + ".summary"
+    paths = {"library": output, "csv": prefix + ".csv", "json": prefix + ".json"}
+    errors, n = [], 0
     try:
-        lots.write_outputs(
-            result, {"library": output, "csv": prefix + ".csv", "json": prefix + ".json"}, dialect=dialect,
-            title=f"diode model library from {os.path.basename(table_file)}",
-            extra=[f"{len(result)} of {n} rows" + (f"; {n_skipped} skipped" if errors else "")],
-            section="lot" if corner_spec else None, corner_cards=corner_cards, skipped=skipped)
-    except OSError as e:
-        _fail(f"cannot write: {e.strerror} ({e.filename})")
-    clock("library and summary")
+        with lots.LotWriter(paths, dialect=dialect, inputs=[table_file], fork=True, signals=True) as writer, \
+                _LotProgress(table_file, quiet) as progress:
+            for table in clock.timed("read", lots.read_chunks(table_file, sets=set_values,
+                                                                name_pattern=name_pattern, rows=lots.CHUNK)):
+                result, good = clock.call("checks and physics", lots.derive, table, chunk=lots.CHUNK)
+                n += len(table.lines)
+                errors += table.problems.errors()
+                if not errors or keep_going:
+                    clock.call("library and summary", writer.add, result)
+                progress(table)
+            if errors and not keep_going:
+                for e in errors:
+                    click.echo(f"modelgen: error: {e}", err=True)
+                click.echo(f"modelgen: {len(np.unique([e.row for e in errors]))} of {n} rows are bad; nothing "
+                           f"written (--keep-going writes the good ones)", err=True)
+                sys.exit(EXIT_INPUT)
+            for e in errors:
+                click.echo(f"modelgen: skipped: {e}", err=True)
+            if not writer.rows:
+                _fail(f"{table_file}: no good rows; nothing written")
+            skipped = [{"row": e.row, "key": e.key, "message": e.message} for e in errors]
+            whole = writer.result()
+            corner_cards = []
+            if corner_spec:
+                try:
+                    chosen = lots.corner_rows(whole, corner_spec)
+                except InputError as e:
+                    _fail(str(e))
+                for section, i, pct in chosen:
+                    corner_cards.append((section, corner_name, i,
+                                         f"corner {section}: the row at the {_ordinal(pct)} percentile of IS "
+                                         f"({whole.device.name[i]}), a real row so its parameters stay consistent"))
+            n_skipped = len(np.unique([e.row for e in errors])) if errors else 0
+            clock.call("library and summary", writer.finish,
+                       title=f"diode model library from {os.path.basename(table_file)}",
+                       extra=[f"{writer.rows} of {n} rows" + (f"; {n_skipped} skipped" if errors else "")],
+                       section="lot" if corner_spec else None, corner_cards=corner_cards, skipped=skipped,
+                       result=whole)
+    except InputError as e:
+        _fail(str(e.located(file=table_file)))
+    clock.report()
     if not quiet:
-        click.echo(f"modelgen: {len(result)} cards written to {output}; summary in {prefix}.csv and "
+        click.echo(f"modelgen: {writer.rows} cards written to {output}; summary in {prefix}.csv and "
                    f"{prefix}.json" + (f"; {len(skipped)} problems, rows skipped" if skipped else ""), err=True)
     sys.exit(EXIT_SKIPPED if errors else 0)
 
@@ -458,6 +486,40 @@ def _ordinal(x):
     if text.isdigit() and not 10 <= int(text) % 100 <= 20:
         return text + {1: "st", 2: "nd", 3: "rd"}.get(int(text) % 10, "th")
     return text + "th"
+
+
+class _LotProgress:
+    """A progress bar over the table's lines on stderr, for long runs on a terminal."""
+
+    def __init__(self, table_file, quiet):
+        self.bar = None
+        if not quiet and sys.stderr.isatty():
+            from . import lots
+
+            try:
+                with open(table_file, "rb") as fh:
+                    total = sum(block.count(b"\n") for block in iter(lambda: fh.read(1 << 20), b""))
+            except OSError:
+                total = 0
+            if total > lots.CHUNK:
+                self.bar = click.progressbar(length=total, label="modelgen: lots", file=sys.stderr)
+        self.done = 0
+
+    def __enter__(self):
+        if self.bar is not None:
+            self.bar.__enter__()
+        return self
+
+    def __call__(self, table):
+        if self.bar is not None and len(table.lines):
+            last = int(table.lines[-1])
+            self.bar.update(last - self.done)
+            self.done = last
+
+    def __exit__(self, *exc):
+        if self.bar is not None:
+            self.bar.__exit__(*exc)
+        return False
 
 
 def run():

@@ -16,14 +16,12 @@ same device alone.
 from __future__ import annotations
 
 import csv
-import gc
 import io
 import json
 import math
 import os
 import re
 import string
-from contextlib import contextmanager
 from dataclasses import dataclass
 
 import numpy as np
@@ -31,6 +29,7 @@ import numpy as np
 from . import description, extraction
 from .description import KEYS
 from .errors import InputError, Problems, shown, type_name
+from .output import bulk
 from .textio import read_text
 from .units import MAX_QUANTITY, MAX_UNIT, apply_factor, parse_quantity, unit_factor
 
@@ -45,20 +44,7 @@ _NAME_SPEC = re.compile(r"(0?)([0-9]{0,2})d?")
 _NAME_WIDTH = 20
 
 
-@contextmanager
-def _bulk():
-    """Cyclic garbage collection paused while a table's millions of small objects are made.
-
-    They hold no reference cycles, and each collection would walk them all:
-    with the collector running, reading 100,000 rows takes about twice as long.
-    """
-    enabled = gc.isenabled()
-    gc.disable()
-    try:
-        yield
-    finally:
-        if enabled:
-            gc.enable()
+_bulk = bulk  # the gc pause (modelgen.output.bulk) under its old name here
 
 
 @dataclass
@@ -246,8 +232,8 @@ def _read_csv(path, *, sets=None, name_pattern=None, collect=True):
         for i in spanning.tolist():
             at[i] = min(next((j for j, c in enumerate(body[i]) if "\n" in c), 0), width - 1)
         for j in np.unique(at[spanning]).tolist():
-            problems.add(at == j, parsed[j][0], "a line break inside a quoted cell (the row runs to line {e})",
-                         {"e": lines + spans[1:]})
+            problems.add(at == j, parsed[j][0], "a line break inside a quoted cell (the row spans {k} lines)",
+                         {"k": spans[1:] + 1})
     lens = np.fromiter(map(len, body), int, n)
     short = lens != width
     problems.add(short, "columns", "has {k} cells where the header has " + str(width), {"k": lens})
@@ -423,6 +409,127 @@ def read(path, **kw):
     return read_csv(path, **kw)
 
 
+def read_chunks(path, *, sets=None, name_pattern=None, rows=CHUNK):
+    """A table as a sequence of :class:`Table` pieces of at most about ``rows`` rows (bounded memory).
+
+    TOML and JSON lists, and CSV tables of at most ``rows`` lines, come whole
+    from :func:`read`. A longer CSV table is cut at line ends outside quoted
+    cells and each piece, behind the header, goes through :func:`read_csv`;
+    its line numbers, names from ``name_pattern`` and file name are then made
+    those of the whole table, and a model name repeated from an earlier piece
+    is a problem of its row, as in one pass. A table with line breaks other
+    than LF and CRLF, or not UTF-8, is read whole (the reader's own counting
+    and messages).
+    """
+    path = str(path)
+    whole = path.lower().endswith((".toml", ".json"))
+    if not whole:
+        try:
+            with open(path, "rb") as fh:
+                data = fh.read()
+        except OSError:
+            data = b""
+        whole = data.count(b"\n") <= rows + 1 or _odd_breaks(data)
+    if whole:
+        yield read(path, sets=sets, name_pattern=name_pattern)
+        return
+
+    def record_end(pos, count):
+        """Past the ``count``-th line end from ``pos``, moved on while a quoted cell is open."""
+        end = pos
+        for _ in range(count):
+            k = data.find(b"\n", end)
+            if k < 0:
+                return len(data)
+            end = k + 1
+        while data.count(b'"', pos, end) % 2 and end < len(data):
+            k = data.find(b"\n", end)
+            end = len(data) if k < 0 else k + 1
+        return end
+
+    h = record_end(0, 1)
+    header = data[:h]
+    seen = set()
+    before = 0           # data rows in earlier pieces
+    line = data.count(b"\n", 0, h)  # lines before the piece
+    start = h
+    while start < len(data):
+        end = record_end(start, rows)
+        piece = data[start:end]
+        try:
+            piece.decode("utf-8")
+        except UnicodeDecodeError:
+            yield read(path, sets=sets, name_pattern=name_pattern)  # raises the reader's own message
+            return
+        if piece.strip(b" ,\t\r\n"):
+            table = _read_piece(path, header, piece, line - header.count(b"\n"), before, sets, name_pattern)
+            names = table.columns["name"]
+            upper = [str(x).upper() for x in names]
+            again = np.fromiter((u in seen for u in upper), bool, len(upper))
+            table.problems.add(again, "name", "model name {x!r} is used by an earlier row", {"x": names})
+            seen.update(upper)
+            before += len(table.lines)
+            yield table
+        line += piece.count(b"\n")
+        start = end
+
+
+def _odd_breaks(data):
+    """Line breaks other than LF and CRLF (str.splitlines counts them, a cut at LF does not)."""
+    return (data.count(b"\r") != data.count(b"\r\n")
+            or any(data.find(c) >= 0 for c in (b"\x0b", b"\x0c", b"\x1c", b"\x1d", b"\x1e", b"\xc2\x85",
+                                                  b"\xe2\x80\xa8", b"\xe2\x80\xa9")))
+
+
+def _read_piece(path, header, piece, shift, before, sets, name_pattern):
+    """:func:`read_csv` over ``header`` and ``piece`` (some rows of ``path``), placed as in the whole table."""
+    import copy
+
+    fd = None
+    if hasattr(os, "memfd_create"):
+        fd = os.memfd_create("modelgen-piece")
+        with open(fd, "wb", closefd=False) as fh:
+            fh.write(header)
+            fh.write(piece)
+        name = f"/proc/self/fd/{fd}"
+    else:  # pragma: no cover - no memfd: a named temporary file
+        import tempfile
+
+        with tempfile.NamedTemporaryFile("wb", suffix=".csv", delete=False) as fh:
+            fh.write(header + piece)
+            name = fh.name
+    try:
+        table = read_csv(name, sets=sets, name_pattern=name_pattern)
+    except InputError as e:
+        e = copy.copy(e)
+        if e.file == name:
+            e.file = path
+        if e.row is not None:
+            e.row += shift
+        raise e from None
+    finally:
+        if fd is not None:
+            os.close(fd)
+        else:  # pragma: no cover
+            os.unlink(name)
+    table.file = path
+    table.lines = table.lines + shift
+    p = table.problems
+    p.sources = (path,) * p.n
+    p.rows = tuple(None if r is None else r + shift for r in p.rows)
+    if name_pattern and "name" not in _header_keys(header) and "name" not in (sets or {}):
+        table.columns["name"] = np.array([name_pattern.format(row=int(r), index=before + i)
+                                          for i, r in enumerate(table.lines)], dtype=object)
+    return table
+
+
+def _header_keys(header):
+    import io
+
+    text = header.decode("utf-8", "replace").lstrip("\ufeff")
+    return {c.split("[")[0].strip() for c in next(csv.reader(io.StringIO(text)))}
+
+
 def derive(table: Table, *, chunk=CHUNK, progress=None):
     """The physics of every row of ``table``, chunk by chunk (see :func:`_derive`)."""
     with _bulk():
@@ -578,9 +685,37 @@ def _cells(v, cache=None):
 def summary_texts(cols, cache=None):
     """The summary as (CSV text, the cells of each column) for :func:`summary_json` to reuse."""
     cells = {k: _cells(v, cache) for k, v in cols.items()}
+    return _csv_header(cols) + _csv_rows(cells), cells
+
+
+def _csv_header(cols):
+    return ",".join(cols) + "\n"
+
+
+def _csv_rows(cells):
     # the cells are numbers, true/false, SPICE identifiers or words: no quoting needed
-    body = "\n".join(map(",".join, zip(*cells.values())))
-    return ",".join(cols) + "\n" + body + "\n", cells
+    return "\n".join(map(",".join, zip(*cells.values()))) + "\n"
+
+
+def _json_items(v, cells):
+    """One column's JSON list items without brackets, and the separator that joins two runs of them."""
+    kind = np.asarray(v).dtype.kind
+    if kind in "fi":
+        return ",".join([x or "null" for x in cells] if "" in cells else cells), ","
+    if kind == "b":
+        return ",".join(cells), ","
+    return json.dumps(cells)[1:-1], ", "
+
+
+def _json_text(rows, stats, skipped, columns):
+    """The summary JSON from ``columns``: ``(key, iterable of text pieces)`` each making one list."""
+    head = json.dumps({"rows": rows, "statistics": stats, "skipped": skipped}, indent=1, allow_nan=False)
+    yield head[:-2] + ',\n "columns": {\n  '
+    for j, (k, pieces) in enumerate(columns):
+        yield (",\n  " if j else "") + json.dumps(k) + ": ["
+        yield from pieces
+        yield "]"
+    yield "\n }\n}\n"
 
 
 def statistics(cols):
@@ -608,20 +743,8 @@ def summary_json(cols, stats, skipped, cells=None):
     repr, valid JSON); non-finite ones as null.
     """
     cells = cells or {k: _cells(v) for k, v in cols.items()}
-    parts = []
-    for k, v in cols.items():
-        kind = np.asarray(v).dtype.kind
-        if kind in "fi":
-            c = cells[k]
-            items = "[" + ",".join([x or "null" for x in c] if "" in c else c) + "]"
-        elif kind == "b":
-            items = "[" + ",".join(cells[k]) + "]"
-        else:
-            items = json.dumps(cells[k])
-        parts.append(f"{json.dumps(k)}: {items}")
-    head = json.dumps({"rows": len(cols["name"]), "statistics": stats, "skipped": skipped}, indent=1,
-                      allow_nan=False)
-    return head[:-2] + ',\n "columns": {\n  ' + ",\n  ".join(parts) + "\n }\n}\n"
+    columns = [(k, [_json_items(v, cells[k])[0]]) for k, v in cols.items()]
+    return "".join(_json_text(len(cols["name"]), stats, skipped, columns))
 
 
 def corner_rows(result, spec):
@@ -642,18 +765,18 @@ def corner_rows(result, spec):
         try:
             k = float(spec[:-5])
         except ValueError:
-            raise InputError(f"--corners {spec!r}: write e.g. 3sigma", key="--corners") from None
+            raise InputError(f"{spec!r}: write e.g. 3sigma", key="--corners") from None
         if not k > 0:
-            raise InputError("--corners: sigma must be positive", key="--corners")
+            raise InputError("sigma must be positive", key="--corners")
         pcts = [100 * norm.cdf(-k), 50.0, 100 * norm.cdf(k)]
     else:
         try:
             pcts = [float(x) for x in spec.split(",")]
         except ValueError:
-            raise InputError(f"--corners {spec!r}: give three percentiles, e.g. 5,50,95, or Ksigma",
+            raise InputError(f"{spec!r}: give three percentiles, e.g. 5,50,95, or Ksigma",
                              key="--corners") from None
         if len(pcts) != 3 or not (0 <= pcts[0] < pcts[1] < pcts[2] <= 100):
-            raise InputError("--corners: three increasing percentiles within 0-100 (slow, typical, fast)",
+            raise InputError("three increasing percentiles within 0-100 (slow, typical, fast)",
                              key="--corners")
     order = np.argsort(result.params["IS"], kind="stable")
     n = len(order)
@@ -664,99 +787,288 @@ def corner_rows(result, spec):
     return out
 
 
-#: Share of the library's cards filled by the second process when the outputs are made in parallel;
-#: it makes the summary, about as much work as filling all the cards, so it takes none of them.
-CHILD_SHARE = 0.0
+#: Rows below which a chunk's summary is not worth a second process.
+FORK_MIN = 5000
+#: The body of the library is spliced in here (a text that cannot occur in a rendered library).
+_BODY = "\x00modelgen body\x00"
+#: The derived quantities the library's header and corner cards use (besides params and findings).
+_CARD_DERIVED = ("temperature", "junction_area", "bottom_area")
 
 
-def write_outputs(result, paths, *, dialect, title, extra, section, corner_cards, skipped, parallel=True):
-    """Make and write a lot's library and summary files, all or none (see :func:`_write_outputs`)."""
-    with _bulk():
-        _write_outputs(result, paths, dialect=dialect, title=title, extra=extra, section=section,
-                       corner_cards=corner_cards, skipped=skipped, parallel=parallel)
+def _rows(result, lo, hi):
+    """The devices ``lo:hi`` of ``result`` as a Result of their own."""
+    sl = slice(lo, hi)
+    derived = {k: ({kk: vv[sl] for kk, vv in v.items()} if isinstance(v, dict) else v[sl])
+               for k, v in result.derived.items()}
+    findings = [extraction.Finding(f.mask[sl], f.text, {k: (v[sl] if isinstance(v, np.ndarray) else v)
+                                                         for k, v in f.values.items()})
+                for f in result.findings]
+    return extraction.Result(device=result.device.take(sl), params={k: v[sl] for k, v in result.params.items()},
+                             derived=derived, findings=findings, sources=result.sources)
 
 
-def _write_outputs(result, paths, *, dialect, title, extra, section, corner_cards, skipped, parallel=True):
-    """Make and write a lot's library and summary files, all or none.
+def _skeleton(parts):
+    """One Result over every good row for the library's header and corner cards, from chunk parts.
+
+    Holds the names, lines, sources, parameters, the derived quantities the
+    cards use, and the findings; the device's input columns are zeros that
+    take no memory (nothing downstream of the physics reads them). The parts
+    are emptied as their columns are joined, so memory is not doubled.
+    """
+    from dataclasses import fields
+
+    from .device import Device, Side
+
+    n = sum(len(p.names) for p in parts)
+    zero = np.broadcast_to(np.float64(0.0), (n,))
+
+    def empty(cls):
+        return cls(**{f.name: (empty(Side) if f.type in ("Side", Side) else zero) for f in fields(cls)})
+
+    def join(get):
+        vals = [get(p) for p in parts]
+        return np.concatenate(vals) if isinstance(vals[0], np.ndarray) else tuple(x for v in vals for x in v)
+
+    device = empty(Device)
+    for name in ("name", "material", "source", "line"):
+        setattr(device, name, join(lambda p, name=name: p.device.pop(name)))
+    first = parts[0]
+    params = {k: join(lambda p, k=k: p.params.pop(k)) for k in list(first.params)}
+    derived = {k: join(lambda p, k=k: p.derived.pop(k)) for k in list(first.derived)}
+    findings = []
+    for i, f0 in enumerate(first.findings):
+        values = {k: (join(lambda p, i=i, k=k: p.findings[i].values[k]) if isinstance(v, np.ndarray) else v)
+                  for k, v in f0.values.items()}
+        findings.append(extraction.Finding(join(lambda p, i=i: p.findings[i].mask), f0.text, values))
+        for p in parts[1:]:
+            p.findings[i] = None
+    return extraction.Result(device=device, params=params, derived=derived, findings=findings,
+                             sources=first.sources)
+
+
+class _Part:
+    """What :func:`_skeleton` needs of a chunk's result (not its input columns)."""
+
+    def __init__(self, result):
+        d = result.device
+        self.device = {"name": d.name, "material": d.material, "source": d.source, "line": d.line}
+        self.names = d.name
+        self.params = dict(result.params)
+        self.derived = {k: result.derived[k] for k in _CARD_DERIVED}
+        self.findings = list(result.findings)
+        self.sources = result.sources
+
+
+def _summary_part(result, cache, first):
+    """A chunk's summary: its CSV text (with the header when ``first``), its JSON items per column, and
+    its numeric columns for the statistics."""
+    cols = summary_columns(result)
+    cells = {k: _cells(v, cache) for k, v in cols.items()}
+    csv_text = (_csv_header(cols) if first else "") + _csv_rows(cells)
+    items = [(k,) + _json_items(v, cells[k]) for k, v in cols.items()]
+    return csv_text, items
+
+
+def _numeric(cols):
+    return {k: v for k, v in cols.items() if k != "line" and np.asarray(v).dtype.kind in "fi"}
+
+
+class LotWriter:
+    """A lot's library and summary files, made chunk by chunk and replaced all together or not at all.
+
+    Feed it the good rows chunk by chunk (:meth:`add`), then :meth:`finish`
+    with the library's title and corner cards. Card text and summary text
+    are made one chunk at a time (bounded memory); the library's body and
+    the summary's JSON columns wait in scratch files until the header, which
+    depends on every row, is known. The bytes are the same whatever the
+    chunks and whether or not a second process helps (``fork``).
 
     Parameters
     ----------
-    result : Result
-        The good rows.
     paths : dict
         ``{"library": path, "csv": path, "json": path}``.
-    parallel : bool
-        On POSIX, with a large table, a forked second process makes the
-        summary and a share (:data:`CHILD_SHARE`) of the cards while this one
-        makes the rest: two cores, the same bytes.
-
-    Every file goes to a temporary file beside its target; only when all are
-    written are they renamed into place.
+    dialect : str
+    inputs : sequence of paths
+        Files read for this lot; no output may be one of them.
+    fork : bool
+        On POSIX, make each chunk's summary in a forked second process while
+        this one fills the cards and goes on with the next chunk. Off by
+        default: a library call never forks unless asked; the command line
+        asks.
+    fork_min : int
+        Chunks smaller than this are not worth a second process (default :data:`FORK_MIN`).
+    signals : bool
+        Clean up on SIGTERM/SIGHUP (see :class:`modelgen.output.Commit`).
+    keep : bool
+        Keep what the header and corner cards need of each chunk (off when
+        the caller holds the whole Result and passes it to :meth:`finish`).
     """
-    from . import cards
-    from .textio import temporary_beside
 
-    n = len(result)
-    cols = summary_columns(result)
-    temps = {k: temporary_beside(p) for k, p in paths.items()}
-    part = temporary_beside(paths["library"])
+    def __init__(self, paths, *, dialect, inputs=(), fork=False, fork_min=None, signals=False, keep=True):
+        from .output import Commit
 
-    def write(path, text):
-        with open(path, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
+        self.commit = Commit(paths, inputs=inputs, signals=signals)
+        self.dialect = dialect
+        self.fork = fork
+        self.fork_min = FORK_MIN if fork_min is None else fork_min
+        self.keep = keep
+        self.parts = []      # what the header needs of each chunk (keep=True)
+        self.whole = None    # those joined (:meth:`result`)
+        self.numeric = []    # per chunk: the numeric summary columns, for the statistics
+        self.pieces = []     # per chunk: (file, offset, [(key, length, separator)]) of its JSON items
+        self.rows = 0
+        self.pending = None  # (Beside, part file name) of a chunk's summary being made in a second process
 
-    # the card columns are formatted once, before any fork: both processes use them, and the
-    # summary shares the columns it has in common with the cards
-    cache = {}
-    columns, _ = cards.card_columns(result, dialect)
-    texts = [cards.format_numbers(v, cache) for _, v in columns]
-
-    def summary():
-        csv_text, cells = summary_texts(cols, cache)
-        write(temps["csv"], csv_text)
-        write(temps["json"], summary_json(cols, statistics(cols), skipped, cells))
-
-    def cards_of(lo, hi):
-        return cards.table_cards(result, dialect, rows=np.arange(lo, hi), texts=texts)[0]
-
-    try:
-        forking = parallel and hasattr(os, "fork") and n > 5000
-        split = int(n * (1 - CHILD_SHARE)) if forking else n
-        pid = os.fork() if forking else None
-        if pid == 0:  # the child: its share of the cards and the summary; leave without the parent's cleanup
-            code = 0
-            try:
-                if split < n:
-                    write(part, cards_of(split, n))
-                summary()
-            except BaseException:
-                code = 1
-            os._exit(code)
-        body = cards_of(0, split)
-        if pid:
-            _, status = os.waitpid(pid, 0)
-            if status == 0:
-                if split < n:
-                    with open(part, encoding="utf-8") as fh:
-                        body += fh.read()
-            else:  # the child failed: make its share here, where an error can be seen
-                body += cards_of(split, n)
-                summary()
-        else:
-            summary()
-        write(temps["library"], cards.table_library(result, dialect, title=title, extra=extra, section=section,
-                                                    corner_cards=corner_cards, body=body))
-    except BaseException:
-        for t in list(temps.values()):
-            try:
-                os.unlink(t)
-            except OSError:
-                pass
-        raise
-    finally:
+    def __enter__(self):
+        self.commit.__enter__()
         try:
-            os.unlink(part)
-        except OSError:
-            pass
-    for k, p in paths.items():
-        os.replace(temps[k], p)
+            self.body = self.commit.spool("library")
+            self.spool = self.commit.spool("json")
+        except BaseException as e:
+            self.commit.__exit__(type(e), e, e.__traceback__)
+            raise
+        return self
+
+    def __exit__(self, kind, value, tb):
+        if self.pending is not None:
+            self.pending[0].cancel()
+        for fh in (getattr(self, "body", None), getattr(self, "spool", None)) + tuple(f for f, _, _ in self.pieces):
+            if fh is not None and not fh.closed:
+                fh.close()
+        return self.commit.__exit__(kind, value, tb)
+
+    def add(self, result):
+        """Write the cards and the summary rows of ``result`` (the next chunk's good rows)."""
+        from . import cards
+        from .output import Beside
+
+        if result is None or not len(result):
+            return
+        with bulk():
+            cache = {}  # card columns formatted once, shared by the cards and the summary (and the child)
+            columns, _ = cards.card_columns(result, self.dialect)
+            texts = [cards.format_numbers(v, cache) for _, v in columns]
+            first = self.rows == 0
+            self._join()
+            if self.fork and len(result) >= self.fork_min:
+                name = self.commit.part("json")
+
+                def task():
+                    _write_part(name, *_summary_part(result, cache, first))
+
+                beside = Beside(task, fork=True)
+                self.pending = (beside, name)
+                beside.start()
+            else:
+                csv_text, items = _summary_part(result, cache, first)
+                self.commit.write("csv", csv_text)
+                self._spool_items(self.spool, items)
+            self.body.write(cards.table_cards(result, self.dialect, texts=texts)[0].encode("utf-8"))
+            self.numeric.append(_numeric(summary_columns(result)))
+            if self.keep:
+                self.parts.append(_Part(result))
+            self.rows += len(result)
+
+    def _spool_items(self, fh, items):
+        offset = fh.tell()
+        lengths = []
+        for k, text, sep in items:
+            data = text.encode("utf-8")
+            fh.write(data)
+            lengths.append((k, len(data), sep))
+        self.pieces.append((fh, offset, lengths))
+
+    def _join(self):
+        """Wait for the second process's summary of the previous chunk and take its parts in."""
+        if self.pending is None:
+            return
+        beside, name = self.pending
+        beside.join()  # an error or a signal while waiting leaves it pending, for __exit__ to end it
+        self.pending = None
+        fh = open(name, "rb")
+        header = json.loads(fh.readline())
+        start = fh.tell()
+        self.commit.copy("csv", fh, start, header["csv"])
+        lengths = [(k, n, sep) for k, n, sep in header["items"]]
+        self.pieces.append((fh, start + header["csv"], lengths))
+
+    def result(self):
+        """One Result over all good rows, for the header and :func:`corner_rows` (not for physics).
+
+        Made once, from the chunks kept so far, which it then replaces.
+        """
+        if self.whole is None:
+            self.whole, self.parts = _skeleton(self.parts), []
+        return self.whole
+
+    def finish(self, *, title, extra=(), section=None, corner_cards=(), skipped=(), result=None):
+        """Write the library's header and corner cards and the summary JSON, then replace all files.
+
+        ``result``: the whole Result when the caller holds it (else the
+        chunks' skeleton, :meth:`result`).
+        """
+        from . import cards
+
+        if not self.rows:
+            raise ValueError("no rows to write")
+        with bulk():
+            self._join()
+            numeric = {k: np.concatenate([c[k] for c in self.numeric]) for k in self.numeric[0]}
+            self.numeric = []
+            stats = statistics(numeric)
+            del numeric
+            self._write_json(stats, list(skipped))
+            whole = result if result is not None else self.result()
+            text = cards.table_library(whole, self.dialect, title=title, extra=extra, section=section,
+                                       corner_cards=corner_cards, body=_BODY)
+            head, tail = text.split(_BODY)
+            self.commit.write("library", head)
+            self.commit.copy("library", self.body)
+            self.commit.write("library", tail)
+            self.commit.commit()
+
+    def _write_json(self, stats, skipped):
+        keys = [k for k, _, _ in self.pieces[0][2]]
+
+        def pieces(j):
+            for n, (fh, offset, lengths) in enumerate(self.pieces):
+                start = offset + sum(length for _, length, _ in lengths[:j])
+                _, length, sep = lengths[j]
+                if n:
+                    yield sep
+                yield (fh, start, length)
+
+        def columns():
+            for j, k in enumerate(keys):
+                yield k, pieces(j)
+
+        for piece in _json_text(self.rows, stats, skipped, columns()):
+            if isinstance(piece, tuple):
+                self.commit.copy("json", *piece)
+            else:
+                self.commit.write("json", piece)
+
+
+def _write_part(name, csv_text, items):
+    """A chunk's summary in a file: a JSON line with the lengths, then the CSV text and the JSON items."""
+    data = [csv_text.encode("utf-8")] + [text.encode("utf-8") for _, text, _ in items]
+    head = {"csv": len(data[0]), "items": [(k, len(d), sep) for (k, _, sep), d in zip(items, data[1:])]}
+    with open(name, "wb") as fh:
+        fh.write(json.dumps(head).encode("ascii") + b"\n")
+        for d in data:
+            fh.write(d)
+
+
+def write_outputs(result, paths, *, dialect, title, extra, section, corner_cards, skipped, parallel=False,
+                  chunk=CHUNK, inputs=()):
+    """Make and write a lot's library and summary files, all or none, ``chunk`` rows at a time.
+
+    ``result``: the good rows; ``paths``: ``{"library", "csv", "json"}``.
+    ``parallel``: let a forked second process make the summaries (see
+    :class:`LotWriter`); off by default, so a library call never forks.
+    """
+    with LotWriter(paths, dialect=dialect, inputs=inputs, fork=parallel, keep=False) as w:
+        for lo in range(0, len(result), chunk):
+            w.add(_rows(result, lo, min(lo + chunk, len(result))) if len(result) > chunk else result)
+        w.finish(title=title, extra=extra, section=section, corner_cards=corner_cards, skipped=skipped,
+                 result=result)

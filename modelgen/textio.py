@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import os
-import tempfile
 
 from .errors import InputError
 
@@ -47,56 +45,17 @@ def read_text(path, kind="input file", limit=READ_LIMIT):
         raise InputError(f"not UTF-8 text (bad byte at offset {e.start})", file=name) from None
 
 
-def _file_mode():
-    """The permissions a newly created file gets here (0666 less the umask)."""
-    mask = os.umask(0)
-    os.umask(mask)
-    return 0o666 & ~mask
+def write_atomic_many(texts, *, inputs=(), signals=False):
+    """Write ``{path: text}`` so that none is replaced unless all could be (see :class:`modelgen.output.Commit`)."""
+    from .output import write_files
+
+    write_files(texts, inputs=inputs, signals=signals)
 
 
-def temporary_beside(path):
-    """A new empty temporary file beside ``path`` (same folder, so a rename is atomic); its name.
-
-    It gets the permissions an ordinary new file would (mkstemp's own are 0600),
-    so the renamed output is as readable as any other file the user writes.
-    """
-    fd, tmp = tempfile.mkstemp(prefix=".modelgen-", suffix=".tmp", dir=os.path.dirname(os.path.abspath(path)))
-    os.close(fd)
-    os.chmod(tmp, _file_mode())
-    return tmp
-
-
-def _write(tmp, text):
-    with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
-        fh.write(text)
-
-
-def write_atomic_many(texts):
-    """Write several files so that none is replaced unless all could be written.
-
-    Every text goes to a temporary file beside its target first; only when
-    all are written are they renamed into place.
-    """
-    items = [(os.path.abspath(p), t) for p, t in texts.items()]
-    temps = [temporary_beside(p) for p, _ in items]
-    try:
-        for tmp, (_, text) in zip(temps, items):
-            _write(tmp, text)
-    except BaseException:
-        for tmp in temps:
-            try:
-                os.unlink(tmp)
-            except OSError:
-                pass
-        raise
-    for tmp, (path, _) in zip(temps, items):
-        os.replace(tmp, path)
-
-
-def write_atomic(path, text):
+def write_atomic(path, text, *, inputs=(), signals=False):
     """Write ``text`` to ``path`` through a temporary file and a rename.
 
     The file at ``path`` is either left as it was or replaced whole; a
     half-written output never exists under its name.
     """
-    write_atomic_many({path: text})
+    write_atomic_many({path: text}, inputs=inputs, signals=signals)

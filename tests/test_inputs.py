@@ -2,7 +2,6 @@
 exit status 2, no traceback and no output file; files a spreadsheet writes simply work."""
 
 import json
-import os
 from pathlib import Path
 
 import pytest

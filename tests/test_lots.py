@@ -1,4 +1,4 @@
-"""Lot tables: batch equals single, bad rows, keep-going, determinism, atomic writes, ngspice."""
+"""Lot tables: batch equals single, bad rows, keep-going, determinism, atomic writes, ngspice (writing under faults and chunked = one pass: test_output.py)."""
 
 import json
 import os
@@ -191,22 +191,9 @@ def test_library_of_1000_rows_loads_in_ngspice(tmp_path):
     assert all(np.all(res[nm]["current"] > 0) for nm in names)
 
 
-def test_parallel_outputs_are_the_same_bytes(tmp_path):
-    # above 5000 rows a forked process makes the summary and a share of the cards
-    rng = np.random.default_rng(5)
-    rows = [[f"DP{i:05d}", f"{rng.uniform(1e3, 1e4):.5g}", f"{10 ** rng.uniform(18, 20):.4g}",
-             f"{rng.uniform(0.5, 2):.3g}", f"{rng.uniform(1, 20):.3g}", f"{10 ** rng.uniform(15, 16.5):.4g}",
-             f"{rng.uniform(5, 50):.3g}", f"{rng.uniform(0.01, 5):.3g}"] for i in range(6000)]
-    table = lots.read_csv(write_table(tmp_path / "p.csv", rows))
-    result, good = lots.derive(table)
-    outs = {}
-    for mode in (True, False):
-        d = tmp_path / str(mode)
-        d.mkdir()
-        paths = {"library": d / "x.lib", "csv": d / "x.csv", "json": d / "x.json"}
-        lots.write_outputs(result, paths, dialect="spice3", title="t", extra=[], section=None, corner_cards=(),
-                           skipped=[], parallel=mode)
-        outs[mode] = {k: p.read_bytes() for k, p in paths.items()}
-        assert sorted(x.name for x in d.iterdir()) == ["x.csv", "x.json", "x.lib"]
-    assert outs[True] == outs[False]
-    assert outs[True]["library"].count(b".model ") == 6000
+@pytest.mark.parametrize("spec", ["5,50", "5,x", "0sigma", "xsigma"])
+def test_bad_corner_spec_is_one_line_naming_the_option_once(tmp_path, spec):
+    r = run("lots", ROOT / "examples" / "lot_table.csv", "-o", tmp_path / "c.lib", "--dialect", "ngspice",
+            "--corners", spec)
+    assert r.exit_code == 2 and len(r.stderr.splitlines()) == 1 and r.stderr.count("--corners") == 1, r.stderr
+    assert list(tmp_path.iterdir()) == []
