@@ -475,6 +475,9 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
         _fail(str(e.located(file=table_file)))
     clock.report()
     if not quiet:
+        for kind, count in whole.rows_by_kind().items():
+            label = extraction.KINDS.get(kind, kind)
+            click.echo(f"modelgen: warning: {count} of {writer.rows} rows: {label}", err=True)
         click.echo(f"modelgen: {writer.rows} cards written to {output}; summary in {prefix}.csv and "
                    f"{prefix}.json" + (f"; {len(skipped)} problems, rows skipped" if skipped else ""), err=True)
     sys.exit(EXIT_SKIPPED if errors else 0)

@@ -651,7 +651,7 @@ def summary_columns(result):
             cols[f"{side}.{k}"] = result.derived[side][k]
     warn = np.zeros(len(result), int)
     for f in result.findings:
-        if not f.text.startswith(("note:", "caution:")):
+        if f.severity == "warning":
             warn += f.mask
     cols["warnings"] = warn
     return cols
@@ -660,25 +660,18 @@ def summary_columns(result):
 def _cells(v, cache=None):
     """Text cells of one summary column: numbers ('' for NaN), true/false, text.
 
-    Card parameters already formatted for the cards (``cache``, see
-    :func:`modelgen.cards.format_numbers`) keep the cards' exponent text; other
-    numbers are Python's shortest round-trip repr. Each distinct value is
-    formatted once (constant columns cost nothing).
+    Every number is written as on the cards, in exponent form with the fewest
+    digits that read back exactly (:func:`modelgen.cards.format_numbers`), in
+    every dialect; card columns already formatted for the cards (``cache``)
+    are not formatted again. Each distinct value is formatted once.
     """
-    from .cards import _take, format_numbers
+    from .cards import format_numbers
 
     if isinstance(v, np.ndarray) and v.dtype.kind == "b":
         return np.where(v, "true", "false").tolist()
     if isinstance(v, np.ndarray) and v.dtype.kind == "f":
-        if cache is not None and id(v) in cache:  # a card column: the cards' exponent text
-            texts = format_numbers(v, cache)
-            return [t if t is not None else "" for t in texts] if None in texts else texts
-        uniq, inverse = np.unique(v, return_inverse=True)  # otherwise the shortest repr, cheaper
-        texts = list(map(repr, uniq.tolist()))
-        if not np.isfinite(uniq).all():
-            for k in np.flatnonzero(~np.isfinite(uniq)).tolist():
-                texts[k] = ""
-        return _take(texts, inverse)
+        texts = format_numbers(v, cache)
+        return [t if t is not None else "" for t in texts] if None in texts else texts
     return list(map(str, np.asarray(v).tolist()))
 
 

@@ -197,3 +197,28 @@ def test_bad_corner_spec_is_one_line_naming_the_option_once(tmp_path, spec):
             "--corners", spec)
     assert r.exit_code == 2 and len(r.stderr.splitlines()) == 1 and r.stderr.count("--corners") == 1, r.stderr
     assert list(tmp_path.iterdir()) == []
+
+
+def test_summary_numbers_read_the_same_in_every_dialect(tmp_path):
+    # one format for every number in a summary: NR was "2.0" in spice3 and "2e+00" in ngspice
+    table = write_table(tmp_path / "t.csv", [("DA", 1e4, 1e19, 1, 10, 1e16, 50, 1)])
+    texts = {}
+    for dialect in ("spice3", "ngspice", "gnucap"):
+        out = tmp_path / f"{dialect}.lib"
+        r = run("lots", table, "-o", out, "--dialect", dialect, "-q")
+        assert r.exit_code == 0, r.output
+        texts[dialect] = (tmp_path / f"{dialect}.summary.csv").read_text()
+    assert texts["spice3"] == texts["ngspice"] == texts["gnucap"]
+    header, first = texts["spice3"].splitlines()[:2]
+    cells = dict(zip(header.split(","), first.split(",")))
+    assert cells["NR"] == "2e+00" and cells["N"] == "1e+00"
+
+
+def test_lots_counts_warnings_by_kind(tmp_path):
+    # rows without a lifetime use the lifetime model: counted once per kind on stderr, not once per row
+    rows = [(f"D{i}", 1e4, 1e18, 1, "", 1e16, 50, 1) for i in range(5)] + [("DX", 1e4, 1e18, 1, 10, 1e16, 50, 1)]
+    table = write_table(tmp_path / "t.csv", rows)
+    r = run("lots", table, "-o", tmp_path / "t.lib")
+    assert r.exit_code == 0, r.output
+    assert "warning: 5 of 6 rows: lifetime modelled, not given" in r.stderr
+    assert r.stderr.count("lifetime modelled") == 1
