@@ -102,28 +102,33 @@ def end_to_end(code, path, out):
 def formatting_floor(result):
     """The same cards by a bare loop, two ways.
 
-    - ``same``: a plain loop that writes exactly the library's cards (their header
-      lines, warnings, parameters in the same exponent text via
-      ``cards.format_number`` one value at a time); checked byte for byte against
-      ``cards.table_cards``. This is the floor the target speaks of.
+    - ``same``: a plain loop that writes exactly the library's cards (their own
+      lines: name and origin, findings, the values the dialect cannot carry;
+      parameters in the same exponent text via ``cards.format_number`` one value
+      at a time); checked byte for byte against ``cards.table_cards``. This is
+      the floor the target speaks of.
     - ``minimal``: '.model NAME D (' and '+ K=repr(v)' lines only: cheaper text,
       not the same cards; shown as the lower bound of any formatting.
     """
     from modelgen import cards
 
-    columns, _ = cards.card_columns(result, "spice3")
+    columns, params = cards.card_columns(result, "spice3")
     names = [k for k, _ in columns]
     cols = [v.tolist() for _, v in columns]
-    warnings = cards._row_warnings(result)
+    left = cards.left_out_names("spice3")
+    left_cols = [params[k].tolist() for k in left]
     dev = result.device
     src = os.path.basename(dev.source[0])
     t = time.perf_counter()
     parts = []
     for i, name in enumerate(dev.name):
-        parts.append(f"* {name}: {src} line {dev.line[i]}")
-        if warnings[i]:
-            for w in warnings[i].split("\n"):
-                parts.append("* " + w)
+        parts.append(f"* {name}: from {src} line {dev.line[i]}")
+        for m in result.findings_for(i):
+            if m.severity != "caution":  # a caution is said once, in the file header
+                parts.append("* " + ("note: " if m.severity == "note" else "") + m.text)
+        carried = " ".join(f"{k}={cards.format_number(c[i])}" for k, c in zip(left, left_cols) if c[i] == c[i])
+        if carried:
+            parts.append(f"* not carried by the spice3 dialect: {carried}")
         parts.append(f".model {name} D (")
         for k, c in zip(names, cols):
             v = c[i]
