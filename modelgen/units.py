@@ -242,7 +242,7 @@ def _unit_factor(unit_text, kind):
     try:
         unit = _unit(unit_text)
     except Exception:
-        raise ValueError(f"unknown unit {shown(unit_text)} (expected a {kind}, e.g. \"{example}\")") from None
+        raise ValueError(f"unknown unit {shown(unit_text)} (expected a unit of {kind}, e.g. \"{example}\")") from None
     ureg = registry()
     target = ureg.parse_units(si.replace("^", "**"))
     if unit.dimensionality != target.dimensionality:

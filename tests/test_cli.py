@@ -140,3 +140,21 @@ def test_a_directory_as_the_input_is_one_line(tmp_path):
         r = run(*args)
         assert r.exit_code == 2
         assert r.stderr.count("\n") == 1 and "is a directory" in r.stderr and "Usage" not in r.stderr
+
+
+def test_text_slips_are_gone(tmp_path):
+    # "expected a area", "1 cards", "5 th percentile": each message reads as plain English
+    bad = write(tmp_path, GOOD.replace('area = "1e-4 cm^2"', 'area = "3 blorps"'))
+    r = run("card", bad)
+    assert r.exit_code == 2 and "expected a unit of area" in r.stderr and "a area" not in r.stderr
+    r = run("card", write(tmp_path, GOOD), "-q")
+    assert " 1 cards" not in r.stdout and ": diode model card, modelgen" in r.stdout
+    lot = tmp_path / "lot.csv"
+    lot.write_text("name,area [um^2],p.doping [cm^-3],p.thickness [um],p.lifetime [ns],n.doping [cm^-3],"
+                   "n.thickness [um],n.lifetime [us]\n"
+                   + "\n".join(f"D{i},1e4,1e18,1,10,{1e16 * (1 + i / 10):g},50,1" for i in range(21)) + "\n")
+    r = run("lots", lot, "-o", tmp_path / "lot.lib", "--dialect", "ngspice", "--corners", "5,50,95", "-q")
+    assert r.exit_code == 0, r.output
+    text = (tmp_path / "lot.lib").read_text()
+    assert "the row at the 5th percentile of IS" in text and "50th" in text and "95th" in text
+    assert " th percentile" not in text
