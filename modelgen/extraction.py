@@ -344,6 +344,7 @@ def _stages(device, mat, problems):
     8 findings; 9 guard on the card parameters.
     """
     env = _conditions(device, mat)
+    _model_ranges(device, mat, problems)
     sides = {"p": _side_material(device, device.p, "p", mat, env, problems),
              "n": _side_material(device, device.n, "n", mat, env, problems)}
     el = _electrostatics(device, sides, env, problems)
@@ -391,6 +392,20 @@ def _conditions(device, mat):
     return {"t": t, "t_ref": t_ref, "vt": thermal_voltage(t), "eps": device.relative_permittivity * EPS0,
             "ni": ni, "eg": eg, "tau_scale": (t / t_ref) ** device.lifetime_exponent,
             "area_total": device.area + device.perimeter * device.junction_depth}
+
+
+def _model_ranges(device, mat, problems):
+    """Inputs outside the range the material's models cover (the description's bounds are generic)."""
+    t_lo, t_hi = mat.TEMPERATURE_RANGE
+    for key, t in (("temperature", device.temperature), ("temperature", device.reference_temperature)):
+        _rule(problems, ~((t >= t_lo) & (t <= t_hi)), key,
+              f"{{t:.6g}} K is outside the {t_lo:g}-{t_hi:g} K the {mat.NAME} models cover", {"t": t})
+    lo, hi = mat.DOPING_RANGE
+    for name in ("p", "n"):
+        n = getattr(device, name).doping
+        _rule(problems, _given(n) & ~((n >= lo) & (n <= hi)), f"{name}.doping",
+              f"{{n:.3g}} cm^-3 is outside the {_cm3(lo)}-{_cm3(hi)} cm^-3 the {mat.NAME} models cover",
+              {"n": n / 1e6})
 
 
 def _side_material(device, side, name, mat, env, problems):

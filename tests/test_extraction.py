@@ -399,3 +399,22 @@ def test_absurd_rows_of_a_table_are_listed_row_by_row():
     assert good.tolist() == [True] + [False] * len(ABSURD) + [True]
     for k in ("IS", "RS", "CJO", "TT", "ISR", "IKF"):
         assert np.all(np.isfinite(r.params[k][good]) & (r.params[k][good] > 0)), k
+
+
+def test_each_material_checks_the_ranges_its_models_cover(monkeypatch):
+    # the description's bounds are generic; the material's own doping and temperature ranges are
+    # checked in derive, so a material with narrower models refuses what silicon would take
+    toy = _toy_material()
+    toy.DOPING_RANGE = (1e20, 1e23)        # m^-3: 1e14 to 1e17 cm^-3
+    toy.TEMPERATURE_RANGE = (250.0, 400.0)
+    monkeypatch.setitem(materials.MATERIALS, "toy", materials.register(toy))
+    from modelgen.errors import InputError
+    table = {**PLAIN, "name": "DTOY", "material": "toy"}   # p side 1e18 cm^-3
+    with pytest.raises(InputError, match="outside the 1e14-1e17 cm\\^-3 the toy models cover") as e:
+        extraction.derive(description.from_mapping(table, file="toy.toml"))
+    assert e.value.key == "p.doping"
+    cold = {**table, "temperature": "-100 degC", "p": {**PLAIN["p"], "doping": "1e16 cm^-3"}}
+    with pytest.raises(InputError, match="K is outside the 250-400 K the toy models cover") as e:
+        extraction.derive(description.from_mapping(cold, file="toy.toml"))
+    assert e.value.key == "temperature"
+    extraction.derive(description.from_mapping({**PLAIN, "temperature": "-100 degC"}))  # silicon takes it
