@@ -30,9 +30,9 @@ from modelgen.cards import DIALECTS, reader
 from modelgen.cli import main
 from modelgen.spice import check
 
-from test_simulators import need  # skips without the simulator, fails instead with CI=true
+from support import need  # skips without the simulator, fails instead with CI=true
 
-ROOT = Path(__file__).resolve().parent.parent
+from support import ROOT
 CARD = ".model DX D (IS=1e-15 RS=1 CJO=1e-12 TT=1n)\n"
 
 

@@ -22,13 +22,13 @@ from scipy.optimize import brentq
 
 from modelgen import cards, description, extraction
 from modelgen.spice import gnucap
+from support import ROOT, need
 
 K_Q_GNUCAP = 1.3806226e-23 / 1.6021918e-19  # gnucap include/constant.h: P_K / P_Q
 K_Q_SCIPY = scipy.constants.k / scipy.constants.e
 ZERO_C = 273.15
 GMIN_DEFAULT = 1e-12  # gnucap lib/u_opt1.cc: OPT::gmin
 
-ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
 # Written the way `modelgen card` writes cards: comments, one parameter per "+" line, "+ )".
 LIBRARY = """\
@@ -67,11 +67,7 @@ CAP_VOLTS = np.array([-5.0, -1.0, 0.0, 0.2, 0.3, 0.4, 0.6, 0.7, 0.8])
 
 @pytest.fixture
 def needs_gnucap():
-    if not gnucap.available():
-        message = "gnucap is not installed (Debian package `gnucap`)"
-        if os.environ.get("CI") == "true":
-            pytest.fail(message + "; CI must run the simulator tests")
-        pytest.skip(message)
+    need("gnucap")
 
 
 def junction_voltage(v, p, vt, gmin_internal=0.0):

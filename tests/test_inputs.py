@@ -5,21 +5,15 @@ import json
 from pathlib import Path
 
 import pytest
-from click.testing import CliRunner
 
 from modelgen import description, lots
 from modelgen.cards import reader
-from modelgen.cli import main
 from modelgen.errors import InputError
 
-ROOT = Path(__file__).resolve().parent.parent
+from support import ROOT, run
 EXAMPLE = (ROOT / "examples" / "switching_diode.toml").read_text()
 LOT = (ROOT / "examples" / "lot_table.csv").read_text()
 BOM = "\ufeff"
-
-
-def run(*args):
-    return CliRunner().invoke(main, [str(a) for a in args])
 
 
 def refused(r, folder, inputs, *words):

@@ -1,20 +1,15 @@
 """Lot tables: batch equals single, bad rows, keep-going, determinism, atomic writes, ngspice (writing under faults and chunked = one pass: test_output.py)."""
 
 import json
-import os
-from pathlib import Path
 
 import numpy as np
 import pytest
-from click.testing import CliRunner
 from hypothesis import given, settings, strategies as st
 
 from modelgen import cards, description, extraction, lots
-from modelgen.cli import main
-from modelgen.spice import check
 
-ROOT = Path(__file__).resolve().parent.parent
-IN_CI = os.environ.get("CI", "").lower() == "true"
+from support import ROOT, need, run
+
 HEADER = ("name,area [um^2],p.doping [cm^-3],p.thickness [um],p.lifetime [ns],n.doping [cm^-3],"
           "n.thickness [um],n.lifetime [us]")
 
@@ -22,10 +17,6 @@ HEADER = ("name,area [um^2],p.doping [cm^-3],p.thickness [um],p.lifetime [ns],n.
 def write_table(path, rows, header=HEADER):
     path.write_text(header + "\n" + "\n".join(",".join(str(x) for x in r) for r in rows) + "\n")
     return str(path)
-
-
-def run(*args):
-    return CliRunner().invoke(main, [str(a) for a in args])
 
 
 row = st.tuples(
@@ -171,10 +162,7 @@ def test_toml_list_form(tmp_path):
 
 
 def test_library_of_1000_rows_loads_in_ngspice(tmp_path):
-    if not check.installed("ngspice"):
-        if IN_CI:
-            pytest.fail("ngspice is not installed (Debian package: ngspice)")
-        pytest.skip("ngspice is not installed (Debian package: ngspice)")
+    need("ngspice")
     rng = np.random.default_rng(3)
     rows = [[f"DK{i:04d}", f"{rng.uniform(1e3, 1e4):.5g}", f"{10 ** rng.uniform(18, 20):.4g}",
              f"{rng.uniform(0.5, 2):.3g}", f"{rng.uniform(1, 20):.3g}", f"{10 ** rng.uniform(15, 16.5):.4g}",

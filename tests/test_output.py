@@ -17,19 +17,13 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from click.testing import CliRunner
 
 from modelgen import lots, output
-from modelgen.cli import main
 
-ROOT = Path(__file__).resolve().parent.parent
+from support import ROOT, run
 LOT = ROOT / "examples" / "lot_table.csv"
 HEADER = ("name,area [um^2],p.doping [cm^-3],p.thickness [um],p.lifetime [ns],n.doping [cm^-3],"
           "n.thickness [um],n.lifetime [us]")
-
-
-def run(*args):
-    return CliRunner().invoke(main, [str(a) for a in args])
 
 
 def ours(folder):

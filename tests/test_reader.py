@@ -9,7 +9,6 @@ end-of-line comments; ".lib" for library sections closed by ".endl".
 """
 
 import math
-from pathlib import Path
 
 import pytest
 from hypothesis import given, settings, strategies as st
@@ -18,7 +17,7 @@ from modelgen import cards, description, extraction
 from modelgen.cards.reader import Card, CardSyntaxError, parse_number, read_cards, read_file
 from modelgen.errors import InputError
 
-ROOT = Path(__file__).resolve().parent.parent
+from support import ROOT
 
 
 # --- numbers -----------------------------------------------------------------

@@ -7,9 +7,7 @@ tests skip, naming the package to install; in CI (CI=true) they must run.
 """
 
 import json
-import os
 import subprocess
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -20,20 +18,11 @@ from modelgen.cards import reader
 from modelgen.cli import main
 from modelgen.spice import check, evaluator
 
-ROOT = Path(__file__).resolve().parent.parent
-EXAMPLES = sorted((ROOT / "examples").glob("*.toml"))
-IN_CI = os.environ.get("CI", "").lower() == "true"
+from support import EXAMPLES, ROOT, need  # noqa: F401  (need is also imported from here)
 
 #: which simulators read which dialect
 READERS = {"spice3": ("ngspice", "gnucap"), "ngspice": ("ngspice",), "gnucap": ("gnucap",)}
 
-
-def need(simulator):
-    if not check.installed(simulator):
-        msg = f"{simulator} is not installed (Debian package: {check.PACKAGES[simulator]})"
-        if IN_CI:
-            pytest.fail(msg + " -- .ci/run must install it")
-        pytest.skip(msg)
 
 
 def derive(path):

@@ -15,7 +15,7 @@ from modelgen import lots, units
 from modelgen.cli import main
 from modelgen.errors import InputError
 
-ROOT = Path(__file__).resolve().parent.parent
+from support import ROOT
 EXAMPLE = ROOT / "examples" / "switching_diode.toml"
 UM2 = 1e-12  # 1 um^2 in m^2 (SI prefixes; common practice)
 
