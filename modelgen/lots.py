@@ -578,56 +578,9 @@ def _derive(table: Table, *, chunk=CHUNK, progress=None):
 
 
 def _concatenate(parts, good):
-    """One Result over the good rows, from chunk results."""
-    keep = []
-    for sl, res in parts:
-        mask = good[sl]
-        keep.append((res, mask))
-    if not keep:
-        return None
-    first = keep[0][0]
-
-    def cat(get):
-        return np.concatenate([np.asarray(get(r))[m] for r, m in keep])
-
-    params = {k: cat(lambda r, k=k: r.params[k]) for k in first.params}
-    derived = {}
-    for k, v in first.derived.items():
-        if isinstance(v, dict):
-            derived[k] = {kk: cat(lambda r, k=k, kk=kk: r.derived[k][kk]) for kk in v}
-        else:
-            derived[k] = cat(lambda r, k=k: r.derived[k])
-    devices = [r.device.take(m) for r, m in keep]
-    device = _concat_devices(devices)
-    findings = []
-    for f_index, f0 in enumerate(first.findings):
-        mask = cat(lambda r, i=f_index: r.findings[i].mask)
-        values = {}
-        for k, v in f0.values.items():
-            values[k] = cat(lambda r, i=f_index, k=k: r.findings[i].values[k]) if isinstance(v, np.ndarray) else v
-        findings.append(extraction.Finding(mask, f0.text, values))
-    return extraction.Result(device=device, params=params, derived=derived, findings=findings,
-                             sources=first.sources)
-
-
-def _concat_devices(devices):
-    from dataclasses import fields
-
-    from .device import Device, Side
-
-    def cat(objs, cls):
-        kw = {}
-        for f in fields(cls):
-            vals = [getattr(o, f.name) for o in objs]
-            if isinstance(vals[0], Side):
-                kw[f.name] = cat(vals, Side)
-            elif isinstance(vals[0], tuple):
-                kw[f.name] = sum(vals, ()) if len(vals) < 64 else tuple(x for v in vals for x in v)
-            else:
-                kw[f.name] = np.concatenate(vals)
-        return cls(**kw)
-
-    return cat(devices, Device)
+    """One Result over the good rows, from chunk results (``extraction.concatenate`` of their good rows)."""
+    keep = [res.take(good[sl]) for sl, res in parts]
+    return extraction.concatenate(keep) if keep else None
 
 
 #: Derived quantities in the summary table besides the card parameters.
