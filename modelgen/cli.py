@@ -190,7 +190,7 @@ def card_command(device_files, output, fmt, dialect, section, quiet):
 
 @main.command("check")
 @click.argument("card_file", metavar="FILE")
-@click.option("--simulator", type=click.Choice(["ngspice", "gnucap", "all"]), default=None,
+@click.option("--simulator", type=click.Choice([*targets.SIMULATORS, "all"]), default=None,
               help="Run every card in this simulator ('all': every one installed). Default: each card in "
                    "the simulators its dialect (from the header modelgen writes) is meant for; a card "
                    "without that header in every one installed.")
