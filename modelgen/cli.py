@@ -458,13 +458,9 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
             corner_cards = []
             if corner_spec:
                 try:
-                    chosen = lots.corner_rows(whole, corner_spec)
+                    corner_cards = lots.corner_cards(whole, corner_spec, corner_name)
                 except InputError as e:
                     _fail(str(e))
-                for section, i, pct in chosen:
-                    corner_cards.append((section, corner_name, i,
-                                         f"corner {section}: the row at the {_ordinal(pct)} percentile of IS "
-                                         f"({whole.device.name[i]}), a real row so its parameters stay consistent"))
             n_skipped = len(np.unique([e.row for e in errors])) if errors else 0
             clock.call("library and summary", writer.finish,
                        title=f"diode model library from {os.path.basename(table_file)}",
@@ -481,14 +477,6 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
         click.echo(f"modelgen: {writer.rows} cards written to {output}; summary in {prefix}.csv and "
                    f"{prefix}.json" + (f"; {len(skipped)} problems, rows skipped" if skipped else ""), err=True)
     sys.exit(EXIT_SKIPPED if errors else 0)
-
-
-def _ordinal(x):
-    """5 -> '5th', 1 -> '1st', 2.5 -> '2.5th', 0.135 -> '0.135th'."""
-    text = f"{x:.4g}"
-    if text.isdigit() and not 10 <= int(text) % 100 <= 20:
-        return text + {1: "st", 2: "nd", 3: "rd"}.get(int(text) % 10, "th")
-    return text + "th"
 
 
 class _LotProgress:

@@ -693,6 +693,26 @@ def summary_json(cols, stats, skipped, cells=None):
     return "".join(_json_text(len(cols["name"]), stats, skipped, columns))
 
 
+def _ordinal(x):
+    """5 -> '5th', 1 -> '1st', 2.5 -> '2.5th', 0.135 -> '0.135th'."""
+    text = f"{x:.4g}"
+    if text.isdigit() and not 10 <= int(text) % 100 <= 20:
+        return text + {1: "st", 2: "nd", 3: "rd"}.get(int(text) % 10, "th")
+    return text + "th"
+
+
+def corner_cards(result, spec, name):
+    """The corner cards of a lot: ``(section, name, row, comment)`` for each of :func:`corner_rows`.
+
+    Every corner card carries the same model ``name`` in its own section, so
+    switching corners changes one ``.lib`` line; the comment says which row
+    it is and why.
+    """
+    return [(section, name, i, f"corner {section}: the row at the {_ordinal(pct)} percentile of IS "
+                               f"({result.device.name[i]}), a real row so its parameters stay consistent")
+            for section, i, pct in corner_rows(result, spec)]
+
+
 def corner_rows(result, spec):
     """Rows chosen as slow / typical / fast corners by their saturation current IS.
 
