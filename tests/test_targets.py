@@ -99,3 +99,13 @@ def test_toy_target_on_the_command_line(toy, tmp_path):
     assert "dialect toyline (one-line test cards)" in res.stdout
     res = CliRunner().invoke(main, ["card", str(EXAMPLE), "--dialect", "nosuch", "-q"])
     assert res.exit_code == 2 and "toyline" in res.stderr  # the registry is what the option offers
+
+
+def test_toy_target_writes_a_lot_library(toy, tmp_path):
+    out = tmp_path / "lot.lib"
+    res = CliRunner().invoke(main, ["lots", str(ROOT / "examples" / "lot_table.csv"), "-o", str(out),
+                                    "--dialect", "toyline", "-q"])
+    assert res.exit_code == 0, res.output
+    read = reader.read_file(out)
+    assert len(read) == 6 and all(set(c.params) <= set(toy.carries) for c in read)
+    assert sum(ln.startswith(".model") for ln in out.read_text().splitlines()) == 6  # one line per card
