@@ -110,7 +110,40 @@ def _fail(message):
     sys.exit(EXIT_INPUT)
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+class _Commands(click.Group):
+    """The command group; a usage error (an unknown option, a bad option value) is one line, exit 2.
+
+    Click would print the usage text and a hint over three lines; modelgen
+    reports every bad input the same way, as one ``modelgen: error:`` line
+    naming what is wrong (``--help`` still gives the full text).
+    """
+
+    def main(self, args=None, prog_name=None, complete_var=None, standalone_mode=True, **extra):
+        if not standalone_mode:
+            return super().main(args, prog_name, complete_var, standalone_mode, **extra)
+        try:
+            super().main(args, prog_name, complete_var, standalone_mode=False, **extra)
+        except click.exceptions.NoArgsIsHelpError as e:
+            e.show()  # no command at all: the overview is the useful answer
+            sys.exit(EXIT_INPUT)
+        except click.UsageError as e:
+            where = e.ctx.command_path if e.ctx is not None else "modelgen"
+            click.echo(f"modelgen: error: {_one_line(e.format_message())} (see '{where} --help')", err=True)
+            sys.exit(EXIT_INPUT)
+        except click.ClickException as e:
+            click.echo(f"modelgen: error: {_one_line(e.format_message())}", err=True)
+            sys.exit(e.exit_code)
+        except click.Abort:
+            click.echo("modelgen: interrupted", err=True)
+            sys.exit(130)
+        sys.exit(0)
+
+
+def _one_line(text):
+    return " ".join(str(text).split())
+
+
+@click.group(cls=_Commands, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="modelgen")
 def main():
     """Turn the physics of a pn junction into SPICE diode model cards.

@@ -158,3 +158,25 @@ def test_text_slips_are_gone(tmp_path):
     text = (tmp_path / "lot.lib").read_text()
     assert "the row at the 5th percentile of IS" in text and "50th" in text and "95th" in text
     assert " th percentile" not in text
+
+
+@pytest.mark.parametrize("args, says", [
+    (["card", "examples/switching_diode.toml", "--dialect", "nosuch"], "'nosuch' is not one of"),
+    (["cardx"], "No such command 'cardx'"),
+    (["card"], "Missing argument"),
+    (["corners", "examples/switching_diode.toml", "--step", "fast"], "'fast' is not a valid float"),
+    (["lots", "examples/lot_table.csv"], "Missing option '-o'"),
+])
+def test_usage_errors_are_one_line(args, says):
+    # a bad option or a missing argument is bad input like any other: one line, exit 2, no usage dump
+    r = run(*args)
+    assert r.exit_code == 2
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("modelgen: error: ") and says in lines[0], r.stderr
+    assert "--help" in lines[0]
+
+
+def test_help_and_version_still_print_and_exit_0():
+    assert run("--version").exit_code == 0
+    r = run("corners", "--help")
+    assert r.exit_code == 0 and "corners [OPTIONS] DEVICE.toml" in r.stdout  # (in-process the program is "main")
