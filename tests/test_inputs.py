@@ -2,6 +2,7 @@
 exit status 2, no traceback and no output file; files a spreadsheet writes simply work."""
 
 import json
+import os
 from pathlib import Path
 
 import pytest
@@ -43,9 +44,17 @@ def test_empty_description_is_one_line(tmp_path, text):
     card_refused(tmp_path, text, "empty description")
 
 
-def test_dev_null_as_description(tmp_path):
-    r = run("card", "/dev/null", "-o", tmp_path / "out.lib")
-    refused(r, tmp_path, [], "/dev/null", "empty description")
+def test_devices_and_empty_pipes_as_description(tmp_path):
+    # a device is refused before anything is read (/dev/zero would never end, /dev/tty would wait for a
+    # keyboard); a FIFO with no writer reads as empty instead of stalling the run
+    for device in ("/dev/null", "/dev/zero"):
+        r = run("card", device, "-o", tmp_path / "out.lib")
+        refused(r, tmp_path, [], device, "is not a regular file")
+    (tmp_path / "in").mkdir()
+    fifo = tmp_path / "in" / "pipe.toml"
+    os.mkfifo(fifo)
+    r = run("card", fifo, "-o", tmp_path / "out.lib")
+    refused(r, tmp_path, ["in"], str(fifo), "empty description")
 
 
 DEEP = {

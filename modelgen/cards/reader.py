@@ -375,11 +375,10 @@ def read_cards(text, *, file=None):
 def read_limited(path, limit=None, kind="card file"):
     """The UTF-8 text of the regular file ``path``, refusing more than ``limit`` bytes.
 
-    The file is opened without blocking (a FIFO cannot stall it), checked to
-    be a regular file (a directory, a device such as ``/dev/zero``, also
-    through a symbolic link, is refused before anything is read), and read
-    with a cap of ``limit + 1`` bytes (default :data:`MAX_FILE_BYTES`), so a file that grows while it is read
-    cannot exhaust memory either.
+    :func:`modelgen.textio.read_text` with pipes refused too: a directory,
+    a device such as ``/dev/zero`` (also through a symbolic link), a FIFO or
+    a socket is refused before anything is read, and at most ``limit + 1``
+    bytes (default :data:`MAX_FILE_BYTES`) are read.
 
     Raises
     ------
@@ -387,39 +386,7 @@ def read_limited(path, limit=None, kind="card file"):
         Naming the file: missing, not a regular file, too large, unreadable,
         or not UTF-8.
     """
-    import os
-    import stat
-
-    limit = MAX_FILE_BYTES if limit is None else limit
-    name = str(path)
-    try:
-        fd = os.open(name, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_CLOEXEC", 0))
-    except FileNotFoundError:
-        raise InputError("no such file", file=name) from None
-    except IsADirectoryError:
-        raise InputError(f"is a directory, not a {kind}", file=name) from None
-    except OSError as e:
-        raise InputError(f"cannot be read: {e.strerror or e}", file=name) from None
-    try:
-        mode = os.fstat(fd).st_mode
-        if stat.S_ISDIR(mode):
-            raise InputError(f"is a directory, not a {kind}", file=name)
-        if not stat.S_ISREG(mode):
-            raise InputError(f"is not a regular file (a device, FIFO or socket), not a {kind}", file=name)
-    except BaseException:
-        os.close(fd)
-        raise
-    with os.fdopen(fd, "rb") as fh:
-        try:
-            data = fh.read(limit + 1)
-        except OSError as e:
-            raise InputError(f"cannot be read: {e.strerror or e}", file=name) from None
-    if len(data) > limit:
-        raise InputError(f"is larger than {limit // (1024 * 1024)} MiB, the most a {kind} may hold", file=name)
-    try:
-        return data.decode("utf-8")
-    except UnicodeDecodeError as e:
-        raise InputError(f"not UTF-8 text (bad byte at offset {e.start})", file=name) from None
+    return read_text(path, kind, MAX_FILE_BYTES if limit is None else limit, pipes=False)
 
 
 def read_file(path):
