@@ -7,7 +7,7 @@ uses.
 Exit status: 0 success; 1 a card failed its simulator check; 2 bad input or
 usage (one line on stderr, no output file written or touched); 3 no
 simulator to check with; 4 a lot table was written with bad rows skipped
-(--keep-going).
+(--keep-going); 130, 143 a check interrupted by SIGINT, SIGTERM.
 """
 
 from __future__ import annotations
@@ -162,7 +162,8 @@ def main():
 
     Exit status: 0 on success, 1 when a card fails its simulator check, 2 on
     bad input or usage, 3 when no simulator is installed to check with, 4
-    when a lot was written with bad rows skipped (--keep-going).
+    when a lot was written with bad rows skipped (--keep-going), 130 or 143
+    when a check is interrupted (SIGINT, SIGTERM).
     """
 
 
@@ -234,7 +235,9 @@ def card_command(device_files, output, fmt, dialect, section, quiet):
                    "the same on every run).")
 @click.option("--timeout", type=click.FloatRange(min=0, min_open=True, max=86400), default=120.0,
               show_default=True, metavar="SECONDS",
-              help="Time each simulator run (one chunk of up to 200 cards in ngspice, 40 in gnucap) may take.")
+              help="Time each simulator run may take (one chunk of cards: "
+                   + ", ".join(f"up to {sim.check_chunk} in {name}" for name, sim in targets.SIMULATORS.items())
+                   + ").")
 def check_command(card_file, simulator, temperature, sample_size, timeout):
     """Run the diode cards of FILE in ngspice and/or gnucap and compare with modelgen's evaluator.
 
