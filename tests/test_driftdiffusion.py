@@ -218,6 +218,18 @@ def test_erfc_emitter_cv_profile_gives_substrate_doping():
     assert n_cv == pytest.approx(nbg, rel=2e-2)
 
 
+def test_diffused_profiles_put_the_junction_where_the_closed_forms_do():
+    """erfc: Cs erfc(xj/d) = N_bg, Gaussian: xj = d sqrt(ln(Q / (sqrt(pi) d N_bg)))
+    (Plummer, Deal & Griffin 2000, ch. 7), here with scipy.special.erfcinv."""
+    from scipy.special import erfcinv
+
+    e = profiles.erfc_emitter(1e25, 0.2e-6, 1e21, 30e-6)
+    assert e.junctions[0] == pytest.approx(0.2e-6 * erfcinv(1e21 / 1e25), rel=1e-9)
+    g = profiles.gaussian_emitter(1e19, 0.3e-6, 1e21, 30e-6)
+    assert g.junctions[0] == pytest.approx(0.3e-6 * np.sqrt(np.log(1e19 / (np.sqrt(np.pi) * 0.3e-6 * 1e21))), rel=1e-9)
+    assert g(np.array([g.junctions[0]]))[0] == pytest.approx(0.0, abs=1e21 * 1e-9)
+
+
 def test_profile_table_rejects_bad_input():
     """A table that does not start at the p contact or does not run from p to n is refused."""
     with pytest.raises(ValueError, match="depths"):

@@ -568,9 +568,16 @@ def _system(m, u, bias):
     return F.ravel(), ab
 
 
-def _newton(m, u, bias, tol=1e-10, maxit=40):
-    """Damped Newton iterations from ``u``; returns (u, iterations) or (None, iterations)."""
+def _newton(m, u, bias, tol=1e-9, maxit=40):
+    """Damped Newton iterations from ``u``; returns (u, iterations) or (None, iterations).
+
+    Converged when the largest update (psi/Vt, ln n, ln p) is below ``tol``, or
+    below 100 tol twice running: in a heavily doped region the minority
+    density's logarithm carries rounding noise of about 1e-9 that no iteration
+    removes (its carriers are 1e-40 of the majority), harmless to every result.
+    """
     u = u.copy()
+    last = np.inf
     for it in range(1, maxit + 1):
         F, ab = _system(m, u, bias)
         du = solve_banded((_BAND, _BAND), ab, -F, overwrite_ab=True, overwrite_b=True, check_finite=False)
@@ -579,8 +586,10 @@ def _newton(m, u, bias, tol=1e-10, maxit=40):
         big = np.abs(du) > 1.0
         du = np.where(big, np.sign(du) * (1.0 + np.log(np.where(big, np.abs(du), 1.0))), du)
         u += du.reshape(-1, 3)
-        if np.max(np.abs(du)) < tol:
+        size = np.max(np.abs(du))
+        if size < tol or max(size, last) < 100 * tol:
             return u, it
+        last = size
     return None, maxit
 
 
@@ -627,7 +636,9 @@ class Solution:
     depletion_charge : charge of the n side of the junction per area, eps E at
         the junction [C/m^2].
     capacitance : depletion capacitance -d(depletion_charge)/dV times the
-        area [F], from the exact derivative of the discrete solution.
+        area [F], from the exact derivative of the discrete solution (the
+        converged Jacobian solved against the bias derivative of the contact
+        condition); NaN where not asked for.
     junction_current_density : Jn + Jp on the mesh edge at the junction [A/m^2]; equal
         to current_density by current continuity.
     junction_voltage : quasi-Fermi level split at the junction, Vt ln(n p / ni_eff^2) [V]:
@@ -705,8 +716,9 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
         down.
     mesh : Mesh, optional
         Default :func:`make_mesh` (graded for the most reverse bias).
-    capacitance : bool
-        Compute the depletion capacitance at each bias (one extra banded solve).
+    capacitance : bool or array_like of bool
+        Compute the depletion capacitance at each bias, or at the biases where
+        this mask (one entry per bias) is True (one extra banded solve each).
     max_step : float, optional
         Largest continuation step [V]; default 4 Vt forward, 20 Vt reverse.
     refine : float
@@ -731,6 +743,7 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
     if m.equilibrium is None:
         equilibrium(m)
     nb, N = len(v), len(m.x)
+    want_c = np.broadcast_to(np.asarray(capacitance, dtype=bool), v.shape)
     res = dict(j=np.zeros(nb), jj=np.zeros(nb), vj=np.zeros(nb), field=np.zeros(nb), stored=np.zeros(nb), qdep=np.zeros(nb), cap=np.zeros(nb),
                it=np.zeros(nb, int), psi=np.zeros((nb, N)), n=np.zeros((nb, N)), p=np.zeros((nb, N)))
     comps = {k: np.zeros(nb) for k in ("srh_depletion", "srh_neutral", "auger", "surface_p", "surface_n")}
@@ -764,7 +777,7 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
                 hist = hist[-2:]
                 step = min(step * 1.5, step_max)
             u = hist[-1][1]
-            j, out, fld, st, qd, cp, jj, vj = _observe(m, u, target, capacitance)
+            j, out, fld, st, qd, cp, jj, vj = _observe(m, u, target, want_c[k])
             res["j"][k], res["field"][k], res["stored"][k], res["qdep"][k], res["cap"][k] = j, fld, st, qd, cp
             res["jj"][k], res["vj"][k] = jj, vj
             res["it"][k] = its
@@ -775,6 +788,6 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
     area = structure.area
     return Solution(bias=v, current_density=res["j"], current=res["j"] * area, components=comps,
                     peak_field=res["field"], stored_charge=res["stored"], depletion_charge=res["qdep"],
-                    capacitance=res["cap"] if capacitance else np.full(nb, np.nan),
+                    capacitance=np.where(want_c, res["cap"], np.nan),
                     junction_current_density=res["jj"], junction_voltage=res["vj"], psi=res["psi"], n=res["n"],
                     p=res["p"], iterations=res["it"], mesh=m)
