@@ -633,12 +633,16 @@ class Solution:
     peak_field : largest |E| [V/m].
     stored_charge : excess minority charge in the quasi-neutral regions per
         area [C/m^2] (electrons on the p side plus holes on the n side).
-    depletion_charge : charge of the n side of the junction per area, eps E at
-        the junction [C/m^2].
-    capacitance : depletion capacitance -d(depletion_charge)/dV times the
-        area [F], from the exact derivative of the discrete solution (the
-        converged Jacobian solved against the bias derivative of the contact
-        condition); NaN where not asked for.
+    depletion_charge : positive space charge per area, eps |E|max [C/m^2].
+    capacitance : quasi-static small-signal capacitance [F]: q d/dV of the
+        number of electrons in the device (the charge the n contact delivers),
+        times the area; the depletion capacitance in reverse bias, depletion
+        plus diffusion capacitance in forward bias. It is the exact derivative
+        of the discrete solution (the converged Jacobian solved against the
+        bias derivative of the contact condition); NaN where not asked for.
+        Not eps dE/dV at the junction: the majority tail of a heavily doped
+        side spills across the metallurgical junction, and its charge comes
+        from the other contact.
     junction_current_density : Jn + Jp on the mesh edge at the junction [A/m^2]; equal
         to current_density by current continuity.
     junction_voltage : quasi-Fermi level split at the junction, Vt ln(n p / ni_eff^2) [V]:
@@ -687,20 +691,23 @@ def _observe(m, u, bias, capacitance):
     k = m.junction
     j_junction = jscale * (f["jn"][k] + f["jp"][k])
     vj = m.vt * (np.log(n[k] * p[k]) - 2.0 * np.log(m.nie[k]))
-    field = np.max(np.abs(np.diff(psi) / m.h)) * m.vt / m.lref
+    slope = np.diff(psi) / m.h
+    e = int(np.argmax(np.abs(slope)))
+    field = abs(slope[e]) * m.vt / m.lref
     eq = m.equilibrium
     ne, pe = np.exp(eq[:, 1]), np.exp(eq[:, 2])
     excess = np.where(c < 0, n - ne, p - pe) * ~dep
     stored = Q * m.c0 * m.lref * np.sum(m.box * excess)
     qscale = m.structure.permittivity * m.vt / m.lref
-    qdep = qscale * (psi[k + 1] - psi[k]) / m.h[k]
+    qdep = qscale * abs(slope[e])
     cap = np.nan
     if capacitance:
         _, ab = _system(m, u, bias)
         rhs = np.zeros(3 * len(psi))
         rhs[0] = 1.0 / m.vt  # d(psi0/Vt)/dV: the only bias-dependent equation
         du = solve_banded((_BAND, _BAND), ab, rhs, overwrite_ab=True, check_finite=False).reshape(-1, 3)
-        cap = -qscale * (du[k + 1, 0] - du[k, 0]) / m.h[k] * m.structure.area
+        # the charge the n contact delivers: every electron in the device [C/m^2 per V]
+        cap = Q * m.c0 * m.lref * np.sum(m.box * n * du[:, 1]) * m.structure.area
     return j, out, field, stored, qdep, cap, j_junction, vj
 
 
