@@ -293,6 +293,7 @@ class Mesh:
     ln_ni: float  # ln(ni / c0)
     junction: int  # node index of the (first) junction
     equilibrium: np.ndarray | None = field(default=None, repr=False)
+    jacobian_index: np.ndarray | None = field(default=None, repr=False)  # flat band positions, made once
 
 
 def _spacing(x, features, refine, grading, hmax):
@@ -504,38 +505,35 @@ def _system(m, u, bias):
     F[:-1, 2] += f["jp"]
     F[1:, 2] -= f["jp"]
 
-    ab = np.zeros((2 * _BAND + 1, 3 * N))
+    # Jacobian entries as (row node, row eq, col node, col var, value), summed into the band
+    # layout by one bincount over flat indices cached per mesh
     idx = np.arange(N)
-
-    def put(row_node, row_c, col_node, col_c, val):
-        rr = 3 * row_node + row_c
-        cc = 3 * col_node + col_c
-        ab[_BAND + rr - cc, cc] += val
-
     lo, hi = idx[:-1], idx[1:]
-    # Poisson
-    put(idx, 0, idx, 1, -m.box * n)
-    put(idx, 0, idx, 2, m.box * p)
-    put(lo, 0, lo, 0, -inv_h)
-    put(lo, 0, hi, 0, inv_h)
-    put(hi, 0, hi, 0, -inv_h)
-    put(hi, 0, lo, 0, inv_h)
-    # electrons: row i gets +jn(edge i) - jn(edge i-1) - box R
-    put(idx, 1, idx, 1, -m.box * dr_n * n)
-    put(idx, 1, idx, 2, -m.box * dr_p * p)
+    jn_psi, jp_psi = f["jn_psi"], f["jp_psi"]
+    entries = [
+        # Poisson
+        (idx, 0, idx, 1, -m.box * n), (idx, 0, idx, 2, m.box * p),
+        (lo, 0, lo, 0, -inv_h), (lo, 0, hi, 0, inv_h), (hi, 0, hi, 0, -inv_h), (hi, 0, lo, 0, inv_h),
+        # electrons: row i gets +jn(edge i) - jn(edge i-1) - box R
+        (idx, 1, idx, 1, -m.box * dr_n * n), (idx, 1, idx, 2, -m.box * dr_p * p),
+        # holes: row i gets +jp(edge i) - jp(edge i-1) + box R
+        (idx, 2, idx, 1, m.box * dr_n * n), (idx, 2, idx, 2, m.box * dr_p * p),
+    ]
     for sign, rows in ((1.0, lo), (-1.0, hi)):
-        put(rows, 1, hi, 0, sign * f["jn_psi"])
-        put(rows, 1, lo, 0, -sign * f["jn_psi"])
-        put(rows, 1, hi, 1, sign * f["jn_n1"])
-        put(rows, 1, lo, 1, sign * f["jn_n0"])
-    # holes: row i gets +jp(edge i) - jp(edge i-1) + box R
-    put(idx, 2, idx, 1, m.box * dr_n * n)
-    put(idx, 2, idx, 2, m.box * dr_p * p)
-    for sign, rows in ((1.0, lo), (-1.0, hi)):
-        put(rows, 2, hi, 0, sign * f["jp_psi"])
-        put(rows, 2, lo, 0, -sign * f["jp_psi"])
-        put(rows, 2, hi, 2, sign * f["jp_p1"])
-        put(rows, 2, lo, 2, sign * f["jp_p0"])
+        entries += [(rows, 1, hi, 0, sign * jn_psi), (rows, 1, lo, 0, -sign * jn_psi),
+                    (rows, 1, hi, 1, sign * f["jn_n1"]), (rows, 1, lo, 1, sign * f["jn_n0"]),
+                    (rows, 2, hi, 0, sign * jp_psi), (rows, 2, lo, 0, -sign * jp_psi),
+                    (rows, 2, hi, 2, sign * f["jp_p1"]), (rows, 2, lo, 2, sign * f["jp_p0"])]
+    flat = m.jacobian_index
+    if flat is None:
+        width = 3 * N
+        parts = []
+        for rn, rc, cn, cc, _ in entries:
+            rr, col = 3 * rn + rc, 3 * cn + cc
+            parts.append((_BAND + rr - col) * width + col)
+        flat = m.jacobian_index = np.concatenate(parts)
+    vals = np.concatenate([e[4] for e in entries])
+    ab = np.bincount(flat, weights=vals, minlength=(2 * _BAND + 1) * 3 * N).reshape(2 * _BAND + 1, 3 * N)
 
     (psi0, lnn0, lnp0), (psil, lnnl, lnpl) = _boundary(m, bias)
 
