@@ -136,6 +136,14 @@ def test_reverse_capacitance_matches_depletion_approximation(low_injection):
     assert sol.capacitance[1] == pytest.approx(closed_c(r, -1.0), rel=1e-2)
 
 
+def test_peak_field_matches_depletion_approximation(low_injection):
+    """Peak field at -1 V within 1 % of 2 (VJ - V) / W, W the depletion width at -1 V
+    (abrupt junction, Sze & Ng 2007, sec. 2.2)."""
+    r, s, sol = low_injection
+    w = s.permittivity * s.area / closed_c(r, -1.0)
+    assert sol.peak_field[1] == pytest.approx(2.0 * (r.params["VJ"][0] + 1.0) / w, rel=1e-2)
+
+
 def test_transit_time_matches_charge_control(low_injection):
     """Stored minority charge over diffusion current within 2 % of the charge-control TT."""
     r, s, sol = low_injection

@@ -725,7 +725,8 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
         Compute the depletion capacitance at each bias, or at the biases where
         this mask (one entry per bias) is True (one extra banded solve each).
     max_step : float, optional
-        Largest continuation step [V]; default 4 Vt forward, 20 Vt reverse.
+        Largest continuation step [V]; default 4 Vt forward, in reverse 20 Vt
+        or a fifth of the bias reached, whichever is larger.
     refine : float
         Mesh density multiplier when ``mesh`` is not given.
 
@@ -780,7 +781,9 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
                     continue
                 hist.append((vn, u))
                 hist = hist[-2:]
-                step = min(step * 1.5, step_max)
+                # in reverse bias the solution changes smoothly with |V|: steps may grow to a fifth of it
+                cap = step_max if direction > 0 or max_step else max(step_max, 0.2 * abs(vn))
+                step = min(step * 1.5, cap)
             u = hist[-1][1]
             j, out, fld, st, qd, cp, jj, vj = _observe(m, u, target, want_c[k])
             res["j"][k], res["field"][k], res["stored"][k], res["qdep"][k], res["cap"][k] = j, fld, st, qd, cp
