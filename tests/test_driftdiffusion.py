@@ -7,6 +7,8 @@
   test_diffusion.py; the finite-width, finite-S factor is the textbook one
   (Sze & Ng 2007, ch. 2; Pierret 1996, ch. 6).
 - Mesh refinement on nested meshes.
+- High-level injection: a flooded base's recombination of ideality 2 (Ghandhi 1977;
+  Sze & Ng 2007, ch. 2; from memory).
 - The depletion recombination current of ideality near 2, and the reverse generation
   current against the SRH integral over the depletion approximation (Sah, Noyce &
   Shockley, Proc. IRE 45, 1228 (1957)).
@@ -199,6 +201,27 @@ def test_mesh_refinement_converges():
 
 
 # ----------------------------------------------------------------------------- depletion recombination
+
+
+def test_flooded_base_recombination_has_ideality_two():
+    """High-level injection: a p+ n diode whose 50 um, 1e14 cm^-3 base ends in a reflecting contact
+    (S = 0, like an n+ back surface) floods with carriers (p > 10 N_D up to the contact); the base
+    recombination, q W n / (2 tau) with n ~ ni exp(qV/2kT), then has ideality 2 (Ghandhi,
+    *Semiconductor Power Devices*, Wiley 1977, PiN diode; Sze & Ng 2007, ch. 2, high-level
+    injection; both from memory). Only the base component is checked: the p+ side's own current
+    keeps ideality 1 and takes over at higher bias."""
+    table = {"name": "DFLOOD", "area": "1e-4 cm^2", "temperature": "300 K",
+             "p": {"doping": "1e18 cm^-3", "thickness": "2 um", "lifetime": "1 us"},
+             "n": {"doping": "1e14 cm^-3", "thickness": "50 um", "lifetime": "10 us",
+                   "surface_recombination": "0 cm/s"}}
+    r = extraction.derive(description.from_mapping(table))
+    s = dd.structure_from_result(r, 0)
+    v = np.array([0.55, 0.60, 0.65])
+    sol = dd.solve(s, v, capacitance=False)
+    assert np.all(sol.p[:, -1] > 10 * 1e14 * 1e6)  # flooded to the contact
+    base = sol.components["srh_neutral"]
+    ideality = np.diff(v) / (sol.mesh.vt * np.diff(np.log(base)))
+    assert np.all((ideality > 1.9) & (ideality < 2.15)), ideality
 
 
 def test_depletion_recombination_ideality_near_two():
