@@ -309,6 +309,14 @@ def test_diffused_profiles_put_the_junction_where_the_closed_forms_do():
     assert g(np.array([g.junctions[0]]))[0] == pytest.approx(0.0, abs=1e21 * 1e-9)
 
 
+def test_solve_refuses_a_bias_that_is_not_a_number():
+    """A NaN or infinite bias is one clear error, not an endless continuation (common practice)."""
+    r = derive(20, 50, 1)
+    s = dd.structure_from_result(r, 0)
+    with pytest.raises(ValueError, match="finite"):
+        dd.solve(s, [0.1, float("nan")])
+
+
 def test_profile_table_rejects_bad_input():
     """A table that does not start at the p contact or does not run from p to n is refused."""
     with pytest.raises(ValueError, match="depths"):

@@ -440,7 +440,28 @@ def bernoulli(x):
 
 
 def _recombination(m, n, p):
-    """SRH and Auger rates (scaled) and their derivatives in n and p."""
+    """Net recombination rates and their derivatives, in the mesh's scaled units.
+
+    SRH with a midgap trap, R = (n p - nie^2) / (tau_p (n + nie) + tau_n (p + nie)),
+    and Auger, R = (Cn n + Cp p)(n p - nie^2); nie includes band-gap narrowing.
+
+    Parameters
+    ----------
+    m : Mesh
+    n, p : numpy.ndarray
+        Scaled densities at the nodes (n / c0, p / c0) [-].
+
+    Returns
+    -------
+    (srh, auger, dR/dn, dR/dp) : tuple of numpy.ndarray
+        Rates scaled by d0 c0 / lref^2 [-]; positive for net recombination,
+        negative for generation. Valid for non-degenerate silicon.
+
+    References
+    ----------
+    W. Shockley and W. T. Read, Phys. Rev. 87, 835 (1952); R. N. Hall, Phys. Rev. 87, 387
+    (1952); J. Dziewior and W. Schmid, Appl. Phys. Lett. 31, 346 (1977).
+    """
     nie2 = m.nie * m.nie
     u = n * p - nie2
     den = m.tau_p * (n + m.nie) + m.tau_n * (p + m.nie)
@@ -455,7 +476,28 @@ def _recombination(m, n, p):
 
 
 def _fluxes(m, psi, n, p):
-    """SG electron and hole fluxes on the edges (scaled) with their derivatives."""
+    """Scharfetter-Gummel electron and hole current densities on the edges, with derivatives.
+
+    Jn = (Dn/h) [n_{i+1} B(d) - n_i B(-d)], d the step of psi + theta_n over Vt;
+    Jp = -(Dp/h) [p_{i+1} B(-d) - p_i B(d)], d the step of psi - theta_p over Vt.
+    Exact for a constant current and field along the edge.
+
+    Parameters
+    ----------
+    m : Mesh
+    psi, n, p : numpy.ndarray
+        psi / Vt and the scaled densities at the nodes [-].
+
+    Returns
+    -------
+    dict
+        'jn', 'jp' scaled by q d0 c0 / lref [-] and their derivatives in psi
+        and in ln n, ln p at both ends of each edge.
+
+    References
+    ----------
+    Scharfetter & Gummel, IEEE TED 16, 64 (1969); Selberherr (1984), ch. 6.
+    """
     dn = np.diff(psi + m.theta)
     dp = np.diff(psi - m.theta)
     bn, dbn = bernoulli(dn)
@@ -603,7 +645,23 @@ def _neutral_guess(m):
 
 
 def equilibrium(mesh):
-    """Solve at zero bias from the charge-neutral guess; stores and returns the state (N, 3)."""
+    """Thermal equilibrium (zero bias) of the discrete equations, by damped Newton from charge neutrality.
+
+    Parameters
+    ----------
+    mesh : Mesh
+
+    Returns
+    -------
+    numpy.ndarray
+        The state (N, 3): psi / Vt, ln(n / c0), ln(p / c0); also kept as
+        ``mesh.equilibrium`` (the reference for the stored excess charge).
+
+    Raises
+    ------
+    SolverError
+        No convergence in 200 iterations.
+    """
     u, _ = _newton(mesh, _neutral_guess(mesh), 0.0, maxit=200)
     if u is None:
         raise SolverError("no convergence at equilibrium")
@@ -738,6 +796,8 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
     ------
     SolverError
         Newton's method failed at a bias even with steps of 1e-4 V.
+    ValueError
+        A bias is not finite.
 
     Notes
     -----
@@ -745,6 +805,8 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
     ionisation or tunnelling (reverse biases short of breakdown), steady state.
     """
     v = np.asarray(biases, dtype=float).ravel()
+    if not np.all(np.isfinite(v)):
+        raise ValueError("solve: every bias must be a finite number of volts")
     m = mesh if mesh is not None else make_mesh(structure, refine=refine, reverse_to=min(v.min(initial=0.0), 0.0))
     if m.equilibrium is None:
         equilibrium(m)
