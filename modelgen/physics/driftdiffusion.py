@@ -1,0 +1,863 @@
+"""Steady-state 1-D drift-diffusion solver for a pn junction.
+
+The p-side contact is at x = 0 and carries the applied bias V; the n-side
+contact is at x = L and is grounded. The equations, in SI units,
+
+    d/dx (eps dpsi/dx) = -q (p - n + N_D - N_A)             (Poisson)
+    dJn/dx = q R,    dJp/dx = -q R                          (continuity)
+    Jn = -q mu_n n d(psi + theta_n)/dx + q D_n dn/dx
+    Jp = -q mu_p p d(psi - theta_p)/dx - q D_p dp/dx
+
+with Boltzmann statistics n = ni exp((psi + theta_n - phi_n)/Vt),
+p = ni exp((phi_p - psi + theta_p)/Vt). Band-gap narrowing dEg is split
+evenly between the band edges, theta_n = theta_p = dEg / 2 [V], so that
+n p = ni^2 exp(dEg/Vt) = ni_eff^2 in equilibrium, as the closed forms of
+:mod:`modelgen.physics.diffusion` use; the carriers drift in their own
+effective potentials psi + theta_n and psi - theta_p.
+
+Discretisation: box integration on a non-uniform mesh with the
+Scharfetter-Gummel exponentially fitted fluxes (Scharfetter & Gummel 1969).
+Unknowns are psi/Vt and the logarithms of the scaled densities (so the
+densities stay positive); lengths are scaled by the extrinsic Debye length
+of the largest doping, densities by that doping, mobilities by the largest
+mobility (Selberherr 1984, ch. 5 scaling, with a density scale of max|C|).
+The coupled system is solved by Newton's method on the banded Jacobian
+(bandwidth 5 in the interleaved ordering), updates larger than one unit
+(Vt for psi, a factor e for the densities) damped logarithmically, with bias
+continuation from equilibrium (linear predictor, step halving on failure).
+
+Recombination: Shockley-Read-Hall with a midgap trap (n1 = p1 = ni_eff),
+R = (n p - ni_eff^2) / (tau_p (n + ni_eff) + tau_n (p + ni_eff)), plus
+Auger (Cn n + Cp p)(n p - ni_eff^2) with the coefficients of Dziewior &
+Schmid (1977).
+
+Contacts: ohmic, majority carriers at their equilibrium density, the
+potential at its equilibrium value plus the applied bias; the minority
+carrier recombines at the contact with velocity S, Jn(0) = q S (n - n0) at the
+p contact and Jp(L) = q S (p - p0) at the n contact (S = inf: n = n0,
+S = 0: reflecting).
+
+References
+----------
+D. L. Scharfetter and H. K. Gummel, "Large-signal analysis of a silicon Read
+diode oscillator", IEEE Trans. Electron Devices 16, 64 (1969).
+S. Selberherr, *Analysis and Simulation of Semiconductor Devices*, Springer
+1984 (scaling, Newton iteration, contacts).
+W. Shockley and W. T. Read, Phys. Rev. 87, 835 (1952); R. N. Hall, Phys.
+Rev. 87, 387 (1952) (SRH recombination).
+J. Dziewior and W. Schmid, Appl. Phys. Lett. 31, 346 (1977) (Auger).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.linalg import solve_banded
+
+from ..constants import EPS0, Q, thermal_voltage
+from ..materials import silicon
+from . import profiles as _profiles
+
+_BAND = 5  # half-bandwidth of the interleaved (psi, ln n, ln p) Jacobian
+
+
+class SolverError(RuntimeError):
+    """Newton's method failed to converge at a bias, even with the smallest continuation step."""
+
+
+@dataclass
+class Structure:
+    """A 1-D pn diode for the solver: profile, material fields and contacts (SI).
+
+    Attributes
+    ----------
+    profile : modelgen.physics.profiles.Profile
+        Net doping N_D - N_A [m^-3] over 0..L, p contact at x = 0.
+    temperature : float
+        [K].
+    ni : float
+        Intrinsic density without band-gap narrowing [m^-3].
+    permittivity : float
+        [F/m].
+    area : float
+        Junction area [m^2] (currents and capacitance scale with it).
+    electron_mobility, hole_mobility : callable
+        x [m] -> mobility [m^2/(V s)], evaluated at the mesh's edge midpoints.
+    electron_lifetime, hole_lifetime : callable
+        x [m] -> SRH lifetime [s] at the nodes.
+    bandgap_narrowing : callable
+        x [m] -> dEg [V] (the eV value), split evenly between the band edges.
+    velocity_p, velocity_n : float
+        Minority-carrier recombination velocity at the p contact (electrons)
+        and n contact (holes) [m/s]; inf = ideal ohmic, 0 = reflecting.
+    auger_n, auger_p : float
+        Auger coefficients Cn, Cp [m^6/s]; Dziewior & Schmid (1977) by default.
+    features : tuple of float
+        Positions where the mesh is graded finely besides the junctions
+        (depletion edges) [m].
+    """
+
+    profile: _profiles.Profile
+    temperature: float
+    ni: float
+    permittivity: float
+    area: float
+    electron_mobility: object
+    hole_mobility: object
+    electron_lifetime: object
+    hole_lifetime: object
+    bandgap_narrowing: object
+    velocity_p: float = np.inf
+    velocity_n: float = np.inf
+    auger_n: float = silicon.AUGER_CN
+    auger_p: float = silicon.AUGER_CP
+    features: tuple = ()
+
+
+def _piecewise(xj, left, right):
+    """x -> left for x < xj, right beyond (scalars)."""
+    left, right = float(left), float(right)
+    return lambda x: np.where(np.asarray(x) < xj, left, right)
+
+
+def _srh_part(tau, auger, majority):
+    """The SRH lifetime that with Auger at the majority density gives the total lifetime ``tau`` [s].
+
+    1/tau_SRH = 1/tau - C N^2; where Auger alone is already faster than ``tau``,
+    SRH is switched off (inf) and the total lifetime is Auger's.
+    """
+    rate = 1.0 / tau - auger * majority * majority
+    return 1.0 / rate if rate > 0 else np.inf
+
+
+def structure_from_result(result, i, auger=True):
+    """The abrupt or linearly graded diode of row ``i`` of a closed-form Result, as a Structure.
+
+    Solver and closed forms then see identical parameters: each side's doping
+    and thickness (neutral width plus depletion extent at the reference bias),
+    the closed forms' mobilities (electrons in the p side with the p side's
+    minority mobility, in the n side with the n side's majority mobility;
+    holes alike), ni, each side's band-gap narrowing, temperature, junction
+    area (bottom plus sidewall) and contact velocities. Each side's lifetime
+    is the closed forms' minority-carrier lifetime: with ``auger`` the SRH
+    lifetime is reduced so that SRH and Auger together give it at low
+    injection (1/tau_SRH = 1/tau - C N^2), the same lifetime used for both
+    carriers on that side.
+
+    Parameters
+    ----------
+    result : modelgen.extraction.Result
+    i : int
+        Row.
+    auger : bool
+        Include Auger recombination.
+
+    Returns
+    -------
+    Structure
+
+    Notes
+    -----
+    A linear profile is the gradient clipped at the plateau dopings,
+    centred at the junction, the junction at the p side's thickness.
+    """
+    dev = result.device
+    p, n, d = result.derived["p"], result.derived["n"], result.derived
+    na, nd = float(p["doping"][i]), float(n["doping"][i])
+    tp, tn = float(p["thickness"][i]), float(n["thickness"][i])
+    xj, length = tp, tp + tn
+    if bool(dev.linear[i]):
+        prof = _profiles.linear(float(dev.grading[i]), na, nd, length, xj)
+        prof = _profiles.Profile(prof.net, length, (xj,), (xj,))  # material parameters jump at xj
+    else:
+        prof = _profiles.abrupt(na, nd, xj, length)
+    cn, cp = (silicon.AUGER_CN, silicon.AUGER_CP) if auger else (0.0, 0.0)
+    tau_p_side = _srh_part(float(p["lifetime"][i]), cp, na)
+    tau_n_side = _srh_part(float(n["lifetime"][i]), cn, nd)
+    tau = _piecewise(xj, tau_p_side, tau_n_side)
+    features = (xj - float(p["depletion_extent"][i]), xj + float(n["depletion_extent"][i]))
+    return Structure(
+        profile=prof, temperature=float(d["temperature"][i]), ni=float(d["ni"][i]),
+        permittivity=float(dev.relative_permittivity[i]) * EPS0, area=float(d["junction_area"][i]),
+        electron_mobility=_piecewise(xj, p["minority_mobility"][i], n["majority_mobility"][i]),
+        hole_mobility=_piecewise(xj, p["majority_mobility"][i], n["minority_mobility"][i]),
+        electron_lifetime=tau, hole_lifetime=tau,
+        bandgap_narrowing=_piecewise(xj, p["bandgap_narrowing"][i], n["bandgap_narrowing"][i]),
+        velocity_p=float(p["contact_velocity"][i]), velocity_n=float(n["contact_velocity"][i]),
+        auger_n=cn, auger_p=cp, features=features)
+
+
+def structure_from_profile(profile, area, temperature=300.0, lifetimes=None, velocities=(np.inf, np.inf),
+                           material=silicon, relative_permittivity=None):
+    """A Structure for any profile with node-wise material models.
+
+    At each point the local net doping |N_D - N_A| sets the mobilities
+    (minority or majority by the local type: :func:`material.minority_mobility`
+    and :func:`material.majority_mobility`), the band-gap narrowing
+    (:func:`material.bandgap_narrowing`) and, unless ``lifetimes`` are given,
+    the lifetime (:func:`material.minority_lifetime`, whose Auger part is
+    then taken out of the SRH lifetime since the solver adds Auger itself).
+
+    Parameters
+    ----------
+    profile : Profile
+    area : float
+        [m^2].
+    temperature : float
+        [K], within the material's temperature range.
+    lifetimes : (float, float), optional
+        Minority lifetimes of the p-type and n-type regions [s] (SRH, both
+        carriers); default the material's doping-dependent model.
+    velocities : (float, float)
+        Contact recombination velocities at the p and n contacts [m/s].
+    material : module
+        A :mod:`modelgen.materials` module.
+    relative_permittivity : float, optional
+
+    Returns
+    -------
+    Structure
+
+    Notes
+    -----
+    Only the net doping is known, so compensated regions get the mobility of
+    the net doping (higher than the true one). Valid for non-degenerate doping
+    (Boltzmann statistics).
+    """
+    t = float(temperature)
+
+    def absn(x):
+        return np.maximum(np.abs(profile(x)), 1e6)
+
+    def mobility(carrier):
+        def f(x):
+            c, a = profile(x), absn(x)
+            major = (c > 0) if carrier == "electron" else (c < 0)
+            return np.where(major, material.majority_mobility(a, carrier, t), material.minority_mobility(a, carrier, t))
+        return f
+
+    if lifetimes is None:
+        def tau(x):
+            c, a = profile(x), absn(x)
+            tp = 1.0 / np.maximum(1.0 / material.minority_lifetime(a, "p") - silicon.AUGER_CP * a * a, 1e-300)
+            tn = 1.0 / np.maximum(1.0 / material.minority_lifetime(a, "n") - silicon.AUGER_CN * a * a, 1e-300)
+            return np.where(c < 0, tp, tn)
+    else:
+        lp, ln = map(float, lifetimes)
+
+        def tau(x):
+            return np.where(profile(x) < 0, lp, ln)
+
+    eps_r = material.RELATIVE_PERMITTIVITY if relative_permittivity is None else relative_permittivity
+    return Structure(profile=profile, temperature=t, ni=float(material.intrinsic_density(t)),
+                     permittivity=float(eps_r) * EPS0, area=float(area),
+                     electron_mobility=mobility("electron"), hole_mobility=mobility("hole"),
+                     electron_lifetime=tau, hole_lifetime=tau,
+                     bandgap_narrowing=lambda x: material.bandgap_narrowing(absn(x)),
+                     velocity_p=float(velocities[0]), velocity_n=float(velocities[1]))
+
+
+# --------------------------------------------------------------------------- mesh
+
+
+@dataclass
+class Mesh:
+    """Nodes and the material values on them, scaled for the solver.
+
+    Node quantities are averaged over the two halves of each node's box (a
+    jump at a node is integrated exactly); edge quantities are taken at the
+    edge midpoints. Scaled units: lengths by ``lref``, densities by ``c0``,
+    potentials by ``vt``, diffusivities by ``d0``.
+    """
+
+    structure: Structure
+    x: np.ndarray
+    vt: float
+    c0: float
+    lref: float
+    d0: float
+    h: np.ndarray  # scaled edge lengths (N-1,)
+    box: np.ndarray  # scaled box sizes (N,)
+    c: np.ndarray  # scaled net doping (N,)
+    nie: np.ndarray  # scaled ni_eff (N,)
+    theta: np.ndarray  # dEg/2 / Vt (N,)
+    an: np.ndarray  # scaled Dn / h on edges (N-1,)
+    ap: np.ndarray
+    tau_n: np.ndarray  # scaled lifetimes (N,)
+    tau_p: np.ndarray
+    cn: float
+    cp: float
+    sn: float  # scaled contact velocities
+    sp: float
+    ln_ni: float  # ln(ni / c0)
+    junction: int  # node index of the (first) junction
+    equilibrium: np.ndarray | None = field(default=None, repr=False)
+    jacobian_index: np.ndarray | None = field(default=None, repr=False)  # flat band positions, made once
+
+
+def _spacing(x, features, refine, grading, hmax):
+    """Target spacing h(x) = min over features of (h_f + g |x - f|), capped at hmax [m]."""
+    h = np.full_like(x, hmax)
+    for f, hf in features:
+        h = np.minimum(h, (hf + grading * np.abs(x - f)) / refine)
+    return h
+
+
+def make_mesh(structure, refine=1.0, grading=0.08, points=30, reverse_to=0.0, subdivide=1):
+    """A non-uniform mesh graded at the junctions and the depletion edges.
+
+    The spacing grows geometrically (by the factor 1 + ``grading``) away from
+    each feature, from a fraction of the local Debye length, and is at most
+    L / ``points``; ``refine`` = 2 halves it everywhere (twice the nodes). The
+    junctions and any jumps of the profile are nodes.
+
+    Parameters
+    ----------
+    structure : Structure
+    refine : float
+        Mesh density multiplier [-] (1 = the working mesh).
+    grading : float
+        Growth of the spacing per node away from a feature [-].
+    points : int
+        The coarsest spacing is L / points.
+    reverse_to : float
+        Most reverse bias to be solved [V] (<= 0): the depletion edges at
+        that bias, estimated by the depletion approximation, are graded too.
+    subdivide : int
+        Split every interval of the mesh so made into this many equal parts
+        (nested meshes, for convergence studies).
+
+    Returns
+    -------
+    Mesh
+    """
+    s = structure
+    prof = s.profile
+    length = prof.length
+    vt = float(thermal_voltage(s.temperature))
+    probe = np.linspace(0.0, length, 4001)
+    cabs = np.abs(prof(probe))
+    c0 = float(cabs.max())
+
+    def debye(n):
+        return np.sqrt(s.permittivity * vt / (Q * max(float(n), 1.0)))
+
+    # depletion edges by the abrupt depletion approximation with the contact dopings
+    na, nd = abs(float(prof(np.array([0.0]))[0])), abs(float(prof(np.array([length]))[0]))
+    vbi = vt * np.log(na * nd / s.ni**2)
+    feats = []
+    for xj in prof.junctions:
+        feats.append((xj, 0.25 * debye(max(na, nd))))
+        for v in {0.0, min(float(reverse_to), 0.0)}:
+            w = np.sqrt(2 * s.permittivity * max(vbi - v, vt) * (na + nd) / (Q * na * nd))
+            feats.append((max(xj - w * nd / (na + nd), 0.0), 0.25 * debye(na)))
+            feats.append((min(xj + w * na / (na + nd), length), 0.25 * debye(nd)))
+    for f in s.features:
+        local = abs(float(prof(np.array([f]))[0]))
+        feats.append((float(f), 0.25 * debye(local)))
+    hmax = length / points
+    # fine sampling of h(x): geometric around each feature, plus uniform
+    samples = [np.linspace(0.0, length, 2001)]
+    for f, hf in feats:
+        off = hf * np.geomspace(1e-2, max(length / hf, 1.0), 300)
+        samples += [f - off, f + off, [f]]
+    xs = np.unique(np.clip(np.concatenate(samples), 0.0, length))
+    density = 1.0 / _spacing(xs, feats, refine, grading, hmax / refine)
+    xi = np.concatenate([[0.0], np.cumsum(0.5 * (density[1:] + density[:-1]) * np.diff(xs))])
+    stops = sorted({0.0, length, *prof.junctions, *prof.breaks})
+    nodes = []
+    for a, b in zip(stops[:-1], stops[1:]):
+        xa, xb = np.interp([a, b], xs, xi)
+        k = max(int(np.ceil(xb - xa)), 2)
+        nodes.append(np.interp(np.linspace(xa, xb, k + 1), xi, xs)[:-1])
+    x = np.concatenate(nodes + [[length]])
+    x[0] = 0.0
+    if subdivide > 1:
+        frac = np.arange(subdivide) / subdivide
+        x = np.concatenate([(x[:-1, None] + np.diff(x)[:, None] * frac).ravel(), [length]])
+    return _discretise(s, x, vt, c0)
+
+
+def _discretise(s, x, vt, c0):
+    """Material values on the nodes and edges of ``x``, scaled (see :class:`Mesh`)."""
+    prof = s.profile
+    h = np.diff(x)
+    left = np.concatenate([[0.0], 0.5 * h])
+    right = np.concatenate([0.5 * h, [0.0]])
+    box = left + right
+    delta = 1e-9 * h.min()
+
+    def node(f):
+        return (left * f(x - delta) + right * f(x + delta)) / box
+
+    mid = 0.5 * (x[1:] + x[:-1])
+    mu_n, mu_p = s.electron_mobility(mid), s.hole_mobility(mid)
+    mumax = float(max(mu_n.max(), mu_p.max()))
+    d0 = mumax * vt
+    lref = float(np.sqrt(s.permittivity * vt / (Q * c0)))
+    dbgn = node(s.bandgap_narrowing)
+    theta = 0.5 * dbgn / vt
+    nie = s.ni * np.exp(theta) / c0
+    t_scale = d0 / lref**2
+    jn = int(np.argmin(np.abs(x - s.profile.junctions[0])))
+    with np.errstate(divide="ignore"):
+        sn, sp = s.velocity_p * lref / d0, s.velocity_n * lref / d0
+    return Mesh(structure=s, x=x, vt=vt, c0=c0, lref=lref, d0=d0, h=h / lref, box=box / lref,
+                c=node(prof) / c0, nie=nie, theta=theta, an=(mu_n / mumax) / (h / lref),
+                ap=(mu_p / mumax) / (h / lref), tau_n=node(s.electron_lifetime) * t_scale,
+                tau_p=node(s.hole_lifetime) * t_scale, cn=s.auger_n * c0**2 * lref**2 / d0,
+                cp=s.auger_p * c0**2 * lref**2 / d0, sn=sn, sp=sp, ln_ni=float(np.log(s.ni / c0)),
+                junction=jn)
+
+
+# --------------------------------------------------------------------------- equations
+
+
+def bernoulli(x):
+    """The Bernoulli function B(x) = x / (exp(x) - 1) and its derivative.
+
+    Parameters
+    ----------
+    x : numpy.ndarray
+        [-], any real value (no overflow: B -> 0 for large x, -x for large -x).
+
+    Returns
+    -------
+    (B, dB/dx) : tuple of numpy.ndarray
+
+    References
+    ----------
+    Scharfetter & Gummel (1969): the flux weights of their discretisation.
+    """
+    small = np.abs(x) < 1e-5
+    xs = np.where(small, 1.0, x)
+    with np.errstate(over="ignore"):
+        b = np.where(small, 1.0 - 0.5 * x + x * x / 12.0, xs / np.expm1(np.minimum(xs, 700.0)))
+    b = np.where(xs > 700.0, 0.0, b)
+    db = np.where(small, -0.5 + x / 6.0, (b / xs) * (1.0 - b - xs))
+    return b, db
+
+
+def _recombination(m, n, p):
+    """Net recombination rates and their derivatives, in the mesh's scaled units.
+
+    SRH with a midgap trap, R = (n p - nie^2) / (tau_p (n + nie) + tau_n (p + nie)),
+    and Auger, R = (Cn n + Cp p)(n p - nie^2); nie includes band-gap narrowing.
+
+    Parameters
+    ----------
+    m : Mesh
+    n, p : numpy.ndarray
+        Scaled densities at the nodes (n / c0, p / c0) [-].
+
+    Returns
+    -------
+    (srh, auger, dR/dn, dR/dp) : tuple of numpy.ndarray
+        Rates scaled by d0 c0 / lref^2 [-]; positive for net recombination,
+        negative for generation. Valid for non-degenerate silicon.
+
+    References
+    ----------
+    W. Shockley and W. T. Read, Phys. Rev. 87, 835 (1952); R. N. Hall, Phys. Rev. 87, 387
+    (1952); J. Dziewior and W. Schmid, Appl. Phys. Lett. 31, 346 (1977).
+    """
+    nie2 = m.nie * m.nie
+    u = n * p - nie2
+    den = m.tau_p * (n + m.nie) + m.tau_n * (p + m.nie)
+    srh = u / den
+    dsrh_n = p / den - u * m.tau_p / den**2
+    dsrh_p = n / den - u * m.tau_n / den**2
+    cc = m.cn * n + m.cp * p
+    aug = cc * u
+    daug_n = m.cn * u + cc * p
+    daug_p = m.cp * u + cc * n
+    return srh, aug, dsrh_n + daug_n, dsrh_p + daug_p
+
+
+def _fluxes(m, psi, n, p):
+    """Scharfetter-Gummel electron and hole current densities on the edges, with derivatives.
+
+    Jn = (Dn/h) [n_{i+1} B(d) - n_i B(-d)], d the step of psi + theta_n over Vt;
+    Jp = -(Dp/h) [p_{i+1} B(-d) - p_i B(d)], d the step of psi - theta_p over Vt.
+    Exact for a constant current and field along the edge.
+
+    Parameters
+    ----------
+    m : Mesh
+    psi, n, p : numpy.ndarray
+        psi / Vt and the scaled densities at the nodes [-].
+
+    Returns
+    -------
+    dict
+        'jn', 'jp' scaled by q d0 c0 / lref [-] and their derivatives in psi
+        and in ln n, ln p at both ends of each edge.
+
+    References
+    ----------
+    Scharfetter & Gummel, IEEE TED 16, 64 (1969); Selberherr (1984), ch. 6.
+    """
+    dn = np.diff(psi + m.theta)
+    dp = np.diff(psi - m.theta)
+    bn, dbn = bernoulli(dn)
+    bnm, dbnm = bernoulli(-dn)
+    bp, dbp = bernoulli(dp)
+    bpm, dbpm = bernoulli(-dp)
+    n0, n1, p0, p1 = n[:-1], n[1:], p[:-1], p[1:]
+    jn = m.an * (n1 * bn - n0 * bnm)
+    jp = -m.ap * (p1 * bpm - p0 * bp)
+    return dict(jn=jn, jp=jp,
+                jn_psi=m.an * (n1 * dbn + n0 * dbnm), jn_n1=m.an * bn * n1, jn_n0=-m.an * bnm * n0,
+                jp_psi=m.ap * (p1 * dbpm + p0 * dbp), jp_p1=-m.ap * bpm * p1, jp_p0=m.ap * bp * p0)
+
+
+def _boundary(m, bias):
+    """Scaled contact values: psi/Vt, ln n, ln p at x = 0 (bias V) and x = L (grounded)."""
+    out = []
+    for k, v in ((0, bias), (-1, 0.0)):
+        c, nie = m.c[k], m.nie[k]
+        half = 0.5 * abs(c)
+        maj = half + np.sqrt(half * half + nie * nie)
+        mnr = nie * nie / maj
+        n, p = (maj, mnr) if c > 0 else (mnr, maj)
+        psi = np.log(n) - m.ln_ni - m.theta[k] + v / m.vt
+        out.append((psi, np.log(n), np.log(p)))
+    return out
+
+
+def _system(m, u, bias):
+    """Residual F and banded Jacobian (solve_banded layout, l = u = 5) at the state ``u`` (N, 3)."""
+    psi, ln_n, ln_p = u[:, 0], u[:, 1], u[:, 2]
+    n, p = np.exp(ln_n), np.exp(ln_p)
+    N = len(psi)
+    f = _fluxes(m, psi, n, p)
+    srh, aug, dr_n, dr_p = _recombination(m, n, p)
+    r = srh + aug
+    F = np.zeros((N, 3))
+    inv_h = 1.0 / m.h
+    e = np.diff(psi) * inv_h
+    F[:, 0] = m.box * (p - n + m.c)
+    F[:-1, 0] += e
+    F[1:, 0] -= e
+    F[:, 1] = -m.box * r
+    F[:-1, 1] += f["jn"]
+    F[1:, 1] -= f["jn"]
+    F[:, 2] = m.box * r
+    F[:-1, 2] += f["jp"]
+    F[1:, 2] -= f["jp"]
+
+    # Jacobian entries as (row node, row eq, col node, col var, value), summed into the band
+    # layout by one bincount over flat indices cached per mesh
+    idx = np.arange(N)
+    lo, hi = idx[:-1], idx[1:]
+    jn_psi, jp_psi = f["jn_psi"], f["jp_psi"]
+    entries = [
+        # Poisson
+        (idx, 0, idx, 1, -m.box * n), (idx, 0, idx, 2, m.box * p),
+        (lo, 0, lo, 0, -inv_h), (lo, 0, hi, 0, inv_h), (hi, 0, hi, 0, -inv_h), (hi, 0, lo, 0, inv_h),
+        # electrons: row i gets +jn(edge i) - jn(edge i-1) - box R
+        (idx, 1, idx, 1, -m.box * dr_n * n), (idx, 1, idx, 2, -m.box * dr_p * p),
+        # holes: row i gets +jp(edge i) - jp(edge i-1) + box R
+        (idx, 2, idx, 1, m.box * dr_n * n), (idx, 2, idx, 2, m.box * dr_p * p),
+    ]
+    for sign, rows in ((1.0, lo), (-1.0, hi)):
+        entries += [(rows, 1, hi, 0, sign * jn_psi), (rows, 1, lo, 0, -sign * jn_psi),
+                    (rows, 1, hi, 1, sign * f["jn_n1"]), (rows, 1, lo, 1, sign * f["jn_n0"]),
+                    (rows, 2, hi, 0, sign * jp_psi), (rows, 2, lo, 0, -sign * jp_psi),
+                    (rows, 2, hi, 2, sign * f["jp_p1"]), (rows, 2, lo, 2, sign * f["jp_p0"])]
+    flat = m.jacobian_index
+    if flat is None:
+        width = 3 * N
+        parts = []
+        for rn, rc, cn, cc, _ in entries:
+            rr, col = 3 * rn + rc, 3 * cn + cc
+            parts.append((_BAND + rr - col) * width + col)
+        flat = m.jacobian_index = np.concatenate(parts)
+    vals = np.concatenate([e[4] for e in entries])
+    ab = np.bincount(flat, weights=vals, minlength=(2 * _BAND + 1) * 3 * N).reshape(2 * _BAND + 1, 3 * N)
+
+    (psi0, lnn0, lnp0), (psil, lnnl, lnpl) = _boundary(m, bias)
+
+    def dirichlet(node, comp, value):
+        r = 3 * node + comp
+        for col in range(max(r - _BAND, 0), min(r + _BAND, 3 * N - 1) + 1):
+            ab[_BAND + r - col, col] = 0.0
+        ab[_BAND, r] = 1.0
+        F[node, comp] = u[node, comp] - value
+
+    def robin(node, comp, s, ln_eq, sign):
+        # a * (flux balance of the half box) + sign * b * (density - equilibrium)
+        if np.isinf(s):
+            dirichlet(node, comp, ln_eq)
+            return
+        a, b = 1.0 / (1.0 + s), s / (1.0 + s)
+        r = 3 * node + comp
+        for col in range(max(r - _BAND, 0), min(r + _BAND, 3 * N - 1) + 1):
+            ab[_BAND + r - col, col] *= a
+        dens = np.exp(u[node, comp])
+        ab[_BAND, r] += sign * b * dens
+        F[node, comp] = a * F[node, comp] + sign * b * (dens - np.exp(ln_eq))
+
+    dirichlet(0, 0, psi0)
+    dirichlet(0, 2, lnp0)
+    robin(0, 1, m.sn, lnn0, -1.0)  # Jn(1/2) - box R - S (n - n0) = 0
+    dirichlet(N - 1, 0, psil)
+    dirichlet(N - 1, 1, lnnl)
+    robin(N - 1, 2, m.sp, lnpl, 1.0)  # -Jp(N-3/2) + box R + S (p - p0) = 0
+    return F.ravel(), ab
+
+
+def _newton(m, u, bias, tol=1e-9, maxit=40):
+    """Damped Newton iterations from ``u``; returns (u, iterations) or (None, iterations).
+
+    Converged when the largest update (psi/Vt, ln n, ln p) is below ``tol``, or
+    below 100 tol twice running: in a heavily doped region the minority
+    density's logarithm carries rounding noise of about 1e-9 that no iteration
+    removes (its carriers are 1e-40 of the majority), harmless to every result.
+    """
+    u = u.copy()
+    last = np.inf
+    for it in range(1, maxit + 1):
+        F, ab = _system(m, u, bias)
+        du = solve_banded((_BAND, _BAND), ab, -F, overwrite_ab=True, overwrite_b=True, check_finite=False)
+        if not np.all(np.isfinite(du)):
+            return None, it
+        big = np.abs(du) > 1.0
+        du = np.where(big, np.sign(du) * (1.0 + np.log(np.where(big, np.abs(du), 1.0))), du)
+        u += du.reshape(-1, 3)
+        size = np.max(np.abs(du))
+        if size < tol or max(size, last) < 100 * tol:
+            return u, it
+        last = size
+    return None, maxit
+
+
+def _neutral_guess(m):
+    """Charge-neutral equilibrium state: the starting point of the equilibrium solve."""
+    half = 0.5 * np.abs(m.c)
+    maj = half + np.sqrt(half * half + m.nie**2)
+    mnr = m.nie**2 / maj
+    n = np.where(m.c > 0, maj, mnr)
+    p = np.where(m.c > 0, mnr, maj)
+    psi = np.log(n) - m.ln_ni - m.theta
+    return np.column_stack([psi, np.log(n), np.log(p)])
+
+
+def equilibrium(mesh):
+    """Thermal equilibrium (zero bias) of the discrete equations, by damped Newton from charge neutrality.
+
+    Parameters
+    ----------
+    mesh : Mesh
+
+    Returns
+    -------
+    numpy.ndarray
+        The state (N, 3): psi / Vt, ln(n / c0), ln(p / c0); also kept as
+        ``mesh.equilibrium`` (the reference for the stored excess charge).
+
+    Raises
+    ------
+    SolverError
+        No convergence in 200 iterations.
+    """
+    u, _ = _newton(mesh, _neutral_guess(mesh), 0.0, maxit=200)
+    if u is None:
+        raise SolverError("no convergence at equilibrium")
+    mesh.equilibrium = u
+    return u
+
+
+# --------------------------------------------------------------------------- results
+
+
+@dataclass
+class Solution:
+    """Results of :func:`solve` over a bias list (arrays in the order of the biases given; SI units).
+
+    Attributes
+    ----------
+    bias : applied bias, p contact against n contact [V].
+    current_density, current : terminal current [A/m^2], [A] (positive forward), the sum of
+        the components below (free of the cancellation of the large majority-carrier fluxes).
+    components : dict of [A/m^2] per bias, each an integrated recombination
+        rate times q: 'srh_depletion', 'srh_neutral', 'auger', 'surface_p'
+        (electrons recombining at the p contact), 'surface_n' (holes at the n
+        contact); they sum to the terminal current. 'diffusion' is all but
+        'srh_depletion'.
+    peak_field : largest |E| [V/m].
+    stored_charge : excess minority charge in the quasi-neutral regions per
+        area [C/m^2] (electrons on the p side plus holes on the n side).
+    depletion_charge : positive space charge per area, eps |E|max [C/m^2].
+    capacitance : quasi-static small-signal capacitance [F]: q d/dV of the
+        number of electrons in the device (the charge the n contact delivers),
+        times the area; the depletion capacitance in reverse bias, depletion
+        plus diffusion capacitance in forward bias. It is the exact derivative
+        of the discrete solution (the converged Jacobian solved against the
+        bias derivative of the contact condition); NaN where not asked for.
+        Not eps dE/dV at the junction: the majority tail of a heavily doped
+        side spills across the metallurgical junction, and its charge comes
+        from the other contact.
+    junction_current_density : Jn + Jp on the mesh edge at the junction [A/m^2]; equal
+        to current_density by current continuity.
+    junction_voltage : quasi-Fermi level split at the junction, Vt ln(n p / ni_eff^2) [V]:
+        the applied bias less the ohmic drops of the neutral regions.
+    psi, n, p : potential [V] and densities [m^-3] on the mesh, (biases, nodes).
+    iterations : Newton iterations spent per bias (continuation steps included).
+    mesh : the Mesh.
+    """
+
+    bias: np.ndarray
+    current_density: np.ndarray
+    current: np.ndarray
+    components: dict
+    peak_field: np.ndarray
+    stored_charge: np.ndarray
+    depletion_charge: np.ndarray
+    capacitance: np.ndarray
+    junction_current_density: np.ndarray
+    junction_voltage: np.ndarray
+    psi: np.ndarray
+    n: np.ndarray
+    p: np.ndarray
+    iterations: np.ndarray
+    mesh: Mesh
+
+
+def _observe(m, u, bias, capacitance):
+    """Terminal current, mechanism split, field, charges (and dQ/dV) of one converged state (SI)."""
+    psi, n, p = u[:, 0], np.exp(u[:, 1]), np.exp(u[:, 2])
+    f = _fluxes(m, psi, n, p)
+    srh, aug, _, _ = _recombination(m, n, p)
+    jscale = Q * m.d0 * m.c0 / m.lref  # scaled flux -> A/m^2
+    rscale = Q * m.c0 * m.d0 / m.lref  # box (scaled) * R (scaled) -> A/m^2
+    c = m.c
+    dep = ((c < 0) & (p < 0.5 * np.abs(c))) | ((c > 0) & (n < 0.5 * c))
+    dep[m.junction] = True
+    out = {
+        "srh_depletion": rscale * np.sum(m.box * srh * dep),
+        "srh_neutral": rscale * np.sum(m.box * srh * ~dep),
+        "auger": rscale * np.sum(m.box * aug),
+        "surface_p": jscale * (f["jn"][0] - m.box[0] * (srh[0] + aug[0])),
+        "surface_n": jscale * (f["jp"][-1] - m.box[-1] * (srh[-1] + aug[-1])),
+    }
+    # the terminal current as the sum of its parts: no cancellation of large majority fluxes
+    j = sum(out.values())
+    k = m.junction
+    j_junction = jscale * (f["jn"][k] + f["jp"][k])
+    vj = m.vt * (np.log(n[k] * p[k]) - 2.0 * np.log(m.nie[k]))
+    slope = np.diff(psi) / m.h
+    e = int(np.argmax(np.abs(slope)))
+    field = abs(slope[e]) * m.vt / m.lref
+    eq = m.equilibrium
+    ne, pe = np.exp(eq[:, 1]), np.exp(eq[:, 2])
+    excess = np.where(c < 0, n - ne, p - pe) * ~dep
+    stored = Q * m.c0 * m.lref * np.sum(m.box * excess)
+    qscale = m.structure.permittivity * m.vt / m.lref
+    qdep = qscale * abs(slope[e])
+    cap = np.nan
+    if capacitance:
+        _, ab = _system(m, u, bias)
+        rhs = np.zeros(3 * len(psi))
+        rhs[0] = 1.0 / m.vt  # d(psi0/Vt)/dV: the only bias-dependent equation
+        du = solve_banded((_BAND, _BAND), ab, rhs, overwrite_ab=True, check_finite=False).reshape(-1, 3)
+        # the charge the n contact delivers: every electron in the device [C/m^2 per V]
+        cap = Q * m.c0 * m.lref * np.sum(m.box * n * du[:, 1]) * m.structure.area
+    return j, out, field, stored, qdep, cap, j_junction, vj
+
+
+def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=1.0):
+    """Solve the diode at each bias by continuation from equilibrium.
+
+    Parameters
+    ----------
+    structure : Structure
+    biases : array_like
+        Applied biases [V] (p contact against n contact), any order; forward
+        biases are reached by stepping up from 0, reverse ones by stepping
+        down.
+    mesh : Mesh, optional
+        Default :func:`make_mesh` (graded for the most reverse bias).
+    capacitance : bool or array_like of bool
+        Compute the depletion capacitance at each bias, or at the biases where
+        this mask (one entry per bias) is True (one extra banded solve each).
+    max_step : float, optional
+        Largest continuation step [V]; default 4 Vt forward, in reverse 20 Vt
+        or a fifth of the bias reached, whichever is larger.
+    refine : float
+        Mesh density multiplier when ``mesh`` is not given.
+
+    Returns
+    -------
+    Solution
+
+    Raises
+    ------
+    SolverError
+        Newton's method failed at a bias even with steps of 1e-4 V.
+    ValueError
+        A bias is not finite.
+
+    Notes
+    -----
+    Valid for non-degenerate silicon (Boltzmann statistics), no impact
+    ionisation or tunnelling (reverse biases short of breakdown), steady state.
+    """
+    v = np.asarray(biases, dtype=float).ravel()
+    if not np.all(np.isfinite(v)):
+        raise ValueError("solve: every bias must be a finite number of volts")
+    m = mesh if mesh is not None else make_mesh(structure, refine=refine, reverse_to=min(v.min(initial=0.0), 0.0))
+    if m.equilibrium is None:
+        equilibrium(m)
+    nb, N = len(v), len(m.x)
+    want_c = np.broadcast_to(np.asarray(capacitance, dtype=bool), v.shape)
+    res = dict(j=np.zeros(nb), jj=np.zeros(nb), vj=np.zeros(nb), field=np.zeros(nb), stored=np.zeros(nb), qdep=np.zeros(nb), cap=np.zeros(nb),
+               it=np.zeros(nb, int), psi=np.zeros((nb, N)), n=np.zeros((nb, N)), p=np.zeros((nb, N)))
+    comps = {k: np.zeros(nb) for k in ("srh_depletion", "srh_neutral", "auger", "surface_p", "surface_n")}
+    for direction in (1.0, -1.0):
+        sel = np.flatnonzero(v >= 0) if direction > 0 else np.flatnonzero(v < 0)
+        order = sel[np.argsort(direction * v[sel])]
+        step_max = (max_step or (4.0 if direction > 0 else 20.0) * m.vt)
+        hist = [(0.0, m.equilibrium)]
+        for k in order:
+            target = v[k]
+            its = 0
+            step = step_max
+            while hist[-1][0] != target:
+                v0, u0 = hist[-1]
+                vn = v0 + np.clip(target - v0, -step, step)
+                if abs(vn - target) < 1e-12:
+                    vn = target
+                guess = u0
+                if len(hist) > 1:
+                    v1, u1 = hist[-2]
+                    if v0 != v1:
+                        guess = u0 + (u0 - u1) * (vn - v0) / (v0 - v1)
+                u, it = _newton(m, guess, vn)
+                its += it
+                if u is None:
+                    step *= 0.5
+                    if step < 1e-4:
+                        raise SolverError(f"no convergence at {vn:.4g} V")
+                    continue
+                hist.append((vn, u))
+                hist = hist[-2:]
+                # in reverse bias the solution changes smoothly with |V|: steps may grow to a fifth of it
+                cap = step_max if direction > 0 or max_step else max(step_max, 0.2 * abs(vn))
+                step = min(step * 1.5, cap)
+            u = hist[-1][1]
+            j, out, fld, st, qd, cp, jj, vj = _observe(m, u, target, want_c[k])
+            res["j"][k], res["field"][k], res["stored"][k], res["qdep"][k], res["cap"][k] = j, fld, st, qd, cp
+            res["jj"][k], res["vj"][k] = jj, vj
+            res["it"][k] = its
+            res["psi"][k], res["n"][k], res["p"][k] = u[:, 0] * m.vt, np.exp(u[:, 1]) * m.c0, np.exp(u[:, 2]) * m.c0
+            for key in comps:
+                comps[key][k] = out[key]
+    comps["diffusion"] = res["j"] - comps["srh_depletion"]
+    area = structure.area
+    return Solution(bias=v, current_density=res["j"], current=res["j"] * area, components=comps,
+                    peak_field=res["field"], stored_charge=res["stored"], depletion_charge=res["qdep"],
+                    capacitance=np.where(want_c, res["cap"], np.nan),
+                    junction_current_density=res["jj"], junction_voltage=res["vj"], psi=res["psi"], n=res["n"],
+                    p=res["p"], iterations=res["it"], mesh=m)
