@@ -142,20 +142,20 @@ def run(argv, *, cwd, timeout, what):
     SimulatorError
         The program cannot be started or does not finish within ``timeout``.
     """
-    try:
-        posix = {"start_new_session": True, "preexec_fn": _child_setup(os.getpid())} if os.name == "posix" else {}
-        proc = subprocess.Popen(argv, cwd=cwd, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
-                                stderr=subprocess.STDOUT, **posix)
-    except OSError as e:
-        raise SimulatorError(f"{what} could not be started: {e.strerror or e}") from None
+    posix = {"start_new_session": True, "preexec_fn": _child_setup(os.getpid())} if os.name == "posix" else {}
+    # started and registered under the lock: a cancel() from another thread either comes first (and
+    # this run is refused) or finds the process registered and kills it, never in between
     with _LOCK:
         cancelled = _CANCELLED
-        if not cancelled:
-            _LIVE.add(proc)
-    try:
         if cancelled:
-            _kill_group(proc)
             raise SimulatorError(f"{what} run cancelled")
+        try:
+            proc = subprocess.Popen(argv, cwd=cwd, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
+                                    stderr=subprocess.STDOUT, **posix)
+        except OSError as e:
+            raise SimulatorError(f"{what} could not be started: {e.strerror or e}") from None
+        _LIVE.add(proc)
+    try:
         out, _ = proc.communicate(timeout=timeout)
     except subprocess.TimeoutExpired:
         _kill_group(proc)
