@@ -206,11 +206,12 @@ class Commit:
             mode = _file_mode()
             for role, path in self.paths.items():
                 tmp = temporary_name(path)
+                self.temps[role] = tmp  # named before it exists: a signal right after the open still finds it
                 try:
                     fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, mode)
                 except OSError as e:
+                    del self.temps[role]
                     raise self._error(role, e) from None
-                self.temps[role] = tmp
                 self.handles[role] = os.fdopen(fd, "w", encoding="utf-8", newline="\n")
         except BaseException:
             self._abort()
@@ -268,11 +269,12 @@ class Commit:
         """A named scratch file beside output ``role`` (for a second process), removed with the temporaries."""
         path = self.paths[role or next(iter(self.paths))]
         name = temporary_name(path, "part")
+        self.temps[f"part:{name}"] = name  # named before it exists, as in __enter__
         try:
             os.close(os.open(name, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
         except OSError as e:
+            del self.temps[f"part:{name}"]
             raise self._error(role or next(iter(self.paths)), e) from None
-        self.temps[f"part:{name}"] = name
         return name
 
     # -- the commit -----------------------------------------------------------------------------
