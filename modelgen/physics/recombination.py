@@ -160,12 +160,16 @@ def sns_current_density(bias, vj, na, nd, grading, linear, ni, permittivity, tau
     z0 = np.tanh(-0.5 * c_lo)
     zk = np.tanh(0.5 * (phi_k / vt - c_lo))
     z1 = np.tanh(0.5 * c_hi)
-    # the rate times du/dz, without its factor ni (a^2 - 1), is 2 / (A zp^2 + B zm^2 + C zp zm)
+    # the rate times du/dz, without its factor ni (a^2 - 1), is 2 / (A zp^2 + B zm^2 + C zp zm),
+    # zp = 1 + z, zm = 1 - z: a quadratic c0 + c1 z + c2 z^2 in z
     big_a = tau_p * np.exp(half + u_star)
     big_b = tau_n * np.exp(half - u_star)
     big_c = tau_p + tau_n
+    c0 = big_a + big_b + big_c
+    c1 = 2.0 * (big_a - big_b)
+    c2 = big_a + big_b - big_c
     k = 2.0 * Q * vt / eps
-    shape = np.broadcast(vd, z0, big_a, big_b, k).shape
+    shape = np.broadcast(vd, z0, c0, k).shape
     lin = np.broadcast_to(linear, shape)
     rows = np.nonzero(lin) if lin.any() else None
     if rows is not None:
@@ -175,20 +179,32 @@ def sns_current_density(bias, vj, na, nd, grading, linear, ni, permittivity, tau
         emax_l = Q * a_l * w_l * w_l / (8.0 * eps_l)
     t_nodes, t_weights = _nodes(nodes)
     total = np.zeros(shape)
+    z = np.empty(shape)
+    den = np.empty(shape)
+    half_log = np.empty(shape)  # ln(zp/zm) / 2 = artanh z
+    e2 = np.empty(shape)
     for za, zb, side in ((z0, zk, 0), (zk, z1, 1)):
         dz = zb - za
-        k_side = k * (na if side == 0 else nd)
+        # E^2 = k N (u - u_lo) on the p part, k N (u_hi - u) on the n part, linear in artanh z
+        slope = (2.0 * k * na) if side == 0 else (-2.0 * k * nd)
+        offset = (k * na * c_lo) if side == 0 else (k * nd * c_hi)
         for t, wt in zip(t_nodes, t_weights):
-            z = za + dz * (t * t * (3.0 - 2.0 * t))
-            zp = 1.0 + z
-            zm = 1.0 - z
-            den = big_a * zp * zp + big_b * zm * zm + big_c * zp * zm
-            log_ratio = np.log(zp / zm)
-            dist = log_ratio + c_lo if side == 0 else c_hi - log_ratio
-            field = np.sqrt(k_side * np.abs(dist))
+            np.multiply(dz, t * t * (3.0 - 2.0 * t), out=z)
+            z += za
+            np.multiply(c2, z, out=den)
+            den += c1
+            den *= z
+            den += c0
+            np.arctanh(z, out=half_log)
+            np.multiply(slope, half_log, out=e2)
+            e2 += offset
+            np.abs(e2, out=e2)
+            np.sqrt(e2, out=e2)
             if rows is not None:
-                field[rows] = _field_linear((log_ratio[rows] + c_l) * vt_l, vd_l, emax_l)
-            total += (dz * (12.0 * t * (1.0 - t) * wt)) / (den * field)
+                e2[rows] = _field_linear((2.0 * half_log[rows] + c_l) * vt_l, vd_l, emax_l)
+            den *= e2
+            np.divide(dz * (12.0 * t * (1.0 - t) * wt), den, out=den)
+            total += den
     return Q * ni * np.expm1(2.0 * half) * vt * total
 
 
