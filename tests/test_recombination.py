@@ -15,10 +15,9 @@ import pytest
 from scipy import constants as sc
 from scipy.integrate import quad, solve_bvp
 
-from modelgen import description, extraction
+from modelgen import cards, description, extraction
 from modelgen.physics import injection, recombination
 from modelgen.spice import evaluator
-from modelgen import cards
 
 from support import EXAMPLES
 

@@ -60,12 +60,6 @@ def _nodes(m):
     return 0.5 * (x + 1.0), 0.5 * w
 
 
-def _field_squared_abrupt(phi, vd, phi_k, na, nd, permittivity):
-    """(E^2) of an abrupt junction at potential phi from the p edge of the depletion charge [V^2/m^2]."""
-    below = phi <= phi_k
-    return (2.0 * Q / permittivity) * np.where(below, na * phi, nd * (vd - phi))
-
-
 def _field_linear(phi, vd, emax):
     """E of a linearly graded junction at potential phi from the p edge of the depletion charge [V/m].
 
