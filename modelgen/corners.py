@@ -36,11 +36,11 @@ DEFAULT_CORNERS_C = (-40.0, 27.0, 85.0, 125.0)
 CAP_BIASES = (0.0, -1.0, -5.0)
 #: Weight of the ISR rows in the EG/XTI least squares (IS rows weigh 1). ISR and IS
 #: share EG and XTI on a card, but the physics gives them different laws (ISR goes
-#: as ni W / tau, IS as ni^2 D / L), so one must give way: IS, the accurate
-#: diffusion physics, is favoured over the Sah-Noyce-Shockley estimate, itself an
-#: upper bound. With equal weights IS errors near 4 % over -40..125 degC; with
-#: 0.5 near 1 %, ISR near 10 % (the example devices).
-ISR_WEIGHT = 0.5
+#: as ni Vt / (tau E) over a fit window that moves with temperature, and its fitted NR
+#: changes with it; IS goes as ni^2 D / L), so one must give way: IS, the accurate
+#: diffusion physics, is favoured. With 0.5 IS errors reach 7 % over -40..125 degC
+#: on the example devices; with 0.2 they stay near 1 %, ISR near 20-40 % either way.
+ISR_WEIGHT = 0.2
 #: Temperatures the material models cover [K] (corners outside are refused).
 TEMPERATURE_RANGE_K = (50.0, 700.0)
 #: At most this many corners in one run.

@@ -18,7 +18,7 @@ from . import materials
 from .constants import EPS0, Q, thermal_voltage
 from .device import Device
 from .errors import InputError, Problems
-from .physics import breakdown, diffusion, junction, recombination, resistance
+from .physics import breakdown, diffusion, injection, junction, recombination, resistance
 
 #: Order of the card parameters.
 PARAMETERS = ("IS", "N", "RS", "CJO", "VJ", "M", "FC", "TT", "BV", "IBV", "EG", "XTI",
@@ -360,7 +360,7 @@ def _stages(device, mat, problems):
         "IS": cur["IS"], "N": ones, "RS": cur["RS"], "CJO": cap["CJO"], "VJ": el["vj"], "M": cap["M"],
         "FC": device.fc, "TT": cur["TT"], "BV": bd["bv"], "IBV": device.breakdown_current,
         "EG": env["eg"] - env["t"] * mat.bandgap_slope(env["t"]), "XTI": 3.0 * ones,
-        "ISR": cur["ISR"], "NR": 2.0 * ones, "IKF": cur["IKF"],
+        "ISR": cur["ISR"], "NR": cur["NR"], "IKF": cur["IKF"],
     }
     derived = {
         "temperature": env["t"], "ni": env["ni"], "bandgap": env["eg"], "builtin_voltage": el["vbi"],
@@ -492,7 +492,13 @@ def _neutral_region(device, side, name, s, el, problems):
 
 
 def _currents(device, sides, env, el):
-    """Stage 5: IS and TT from both sides, the recombination current ISR, the knee IKF, and RS."""
+    """Stage 5: IS and TT from both sides, the recombination current ISR and NR, the knee IKF, and RS.
+
+    ISR and NR are fitted to the Sah-Noyce-Shockley integral over the depletion-approximation field
+    (:mod:`modelgen.physics.recombination`) in the fit window, weighted by the recombination share of the
+    current; IKF puts the card's high-level limit on the lighter side's high-injection current
+    (:mod:`modelgen.physics.injection`).
+    """
     p, n = sides["p"], sides["n"]
     area_total = env["area_total"]
     lighter_p = p["doping"] <= n["doping"]
@@ -504,12 +510,29 @@ def _currents(device, sides, env, el):
         tau_light = np.where(lighter_p, p["lifetime"], n["lifetime"])
         tau_rec = np.where(_given(device.recombination_lifetime), device.recombination_lifetime * env["tau_scale"],
                            tau_light)
-        isr = area_total * recombination.recombination_saturation_density(env["ni"], el["w0"], tau_rec)
-        n_light = np.minimum(p["doping"], n["doping"])
-        ni_eff_light = np.where(lighter_p, p["ni_eff"], n["ni_eff"])
-        ikf = is_ * (n_light / ni_eff_light) ** 2
+        vj, m = el["vj"], junction.grading_coefficient(el["linear"])
+        bias = recombination.fit_window(vj, p["doping"], n["doping"], el["linear"], env["ni"], env["t"])
+        j_rec = _sns(bias, vj, p["doping"], n["doping"], el["grading"], el["linear"], env["ni"], env["eps"],
+                     tau_rec, env["t"])
+        share = j_rec / (j_rec + j0[:, None] * np.expm1(bias / env["vt"][:, None]))
+        jsr, nr = recombination.fit_recombination(bias, j_rec, share + 1e-3, vj, m, env["t"])
+        isr = area_total * jsr
+        light = {k: np.where(lighter_p, p[k], n[k]) for k in ("ni_eff", "diffusivity", "majority_mobility",
+                                                               "lifetime", "neutral_width", "contact_velocity")}
+        # SRH high-level lifetime tau_n0 + tau_p0 (Shockley & Read 1952), both taken as the side's lifetime
+        j_hl = injection.high_injection_saturation(light["ni_eff"], light["diffusivity"],
+                                                   light["majority_mobility"] * env["vt"], 2.0 * light["lifetime"],
+                                                   light["neutral_width"], light["contact_velocity"])
+        ikf = injection.knee_current(is_, area_total * j_hl)
         rs = p["resistance"] + n["resistance"] + device.contact_resistance
-    return {"IS": is_, "TT": tt, "ISR": isr, "IKF": ikf, "RS": rs, "tau_rec": tau_rec}
+    return {"IS": is_, "TT": tt, "ISR": isr, "NR": nr, "IKF": ikf, "RS": rs, "tau_rec": tau_rec}
+
+
+def _sns(bias, vj, na, nd, grading, linear, ni, eps, tau, t):
+    """The Sah-Noyce-Shockley current density [A/m^2] of each device (rows) at ``bias`` (devices, biases)."""
+    col = lambda a: np.asarray(a)[:, None]  # noqa: E731  (devices down, biases across)
+    return recombination.sns_current_density(bias, col(vj), col(na), col(nd), col(grading), col(linear), col(ni),
+                                             col(eps), col(tau), col(tau), col(t))
 
 
 def _capacitance(env, el):
@@ -620,7 +643,8 @@ DEPENDS = {
     "ISR": ("area", "perimeter", "junction_depth", "material.ni", "recombination_lifetime",
             "material.relative_permittivity", "lifetime_temperature_exponent", "s.lifetime", "s.diffusion_length",
             "s.minority_mobility", "s.doping", "s.resistivity"),
-    "IKF": ("area", "perimeter", "junction_depth", "material.ni") + tuple("s." + k for k in _SIDE_CURRENT),
+    "IKF": ("area", "perimeter", "junction_depth", "material.ni", "s.majority_mobility")
+    + tuple("s." + k for k in _SIDE_CURRENT),
     "RS": ("area", "contact_resistance", "s.majority_mobility", "s.doping", "s.resistivity", "s.thickness",
            "s.neutral_width"),
     "CJO": ("area", "perimeter", "junction_depth", "material.relative_permittivity", "material.ni", "grading",
@@ -718,10 +742,11 @@ def predicted_current(result, vd):
     """The physics core's own low-injection current at junction voltage vd [A].
 
     Diffusion current IS (exp(vd/Vt) - 1) plus the Sah-Noyce-Shockley
-    recombination current with the depletion width at vd,
-    q ni W(vd) A / (2 tau) (exp(vd/2Vt) - 1). Valid at low injection, below
-    the knee IKF and away from breakdown; what the SPICE card's diffusion and
-    recombination terms approximate. Arrays broadcast as (devices, biases).
+    recombination integral over the depletion-approximation field at vd
+    (:func:`modelgen.physics.recombination.sns_current_density`) times the
+    junction area. Valid at low injection, below the knee IKF and away from
+    breakdown; what the SPICE card's diffusion and recombination terms
+    approximate. Arrays broadcast as (devices, biases).
 
     Parameters
     ----------
@@ -730,13 +755,14 @@ def predicted_current(result, vd):
         Junction voltage [V], below VJ.
     """
     vd = np.asarray(vd, float)[None, :]
-    t = result.derived["temperature"][:, None]
-    vt = thermal_voltage(t)
-    w, _ = _junction_width(result, vd)
-    j_rec = recombination.recombination_saturation_density(
-        result.derived["ni"][:, None], w, result.derived["recombination_lifetime"][:, None])
-    return (result.params["IS"][:, None] * np.expm1(vd / vt)
-            + result.derived["junction_area"][:, None] * j_rec * np.expm1(vd / (2 * vt)))
+    t = result.derived["temperature"]
+    d = result.device
+    grading = np.where(d.linear, d.grading, np.nan)
+    j_rec = _sns(np.broadcast_to(vd, (len(result), vd.shape[1])), result.params["VJ"],
+                 result.derived["p"]["doping"], result.derived["n"]["doping"], grading, d.linear,
+                 result.derived["ni"], d.relative_permittivity * EPS0, result.derived["recombination_lifetime"], t)
+    return (result.params["IS"][:, None] * np.expm1(vd / thermal_voltage(t)[:, None])
+            + result.derived["junction_area"][:, None] * j_rec)
 
 
 def predicted_capacitance(result, bias):

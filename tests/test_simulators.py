@@ -50,11 +50,12 @@ def test_every_example_card_loads_cleanly_and_matches_the_evaluator(example_resu
 
 
 def test_evaluator_matches_the_physics_core_at_low_injection(example_results):
-    # Physics core: diffusion + Sah-Noyce-Shockley recombination with W(V), depletion capacitance
-    # eps A / W(V). Evaluator: what ngspice computes from the ngspice card (GMIN and RS taken out).
-    # ngspice's recombination factor ((1 - V/VJ)^2 + 0.005)^(M/2) differs from W(V)/W(0) by its
-    # 0.005 term, about 1 % of the recombination part at 0.4 V; hence the 1 % bound on current.
-    v = np.array([0.05, 0.1, 0.15, 0.2, 0.3, 0.4])
+    # Physics core: diffusion + the Sah-Noyce-Shockley recombination integral over the depletion field at
+    # V, depletion capacitance eps A / W(V). Evaluator: what ngspice computes from the ngspice card (GMIN
+    # and RS taken out). The card's ISR, NR are a least-squares fit of ngspice's recombination form to the
+    # integral over 0.1-0.6 V; the forms differ in shape by a few percent (test_recombination holds them
+    # within 20 % where recombination dominates); hence the 10 % bound on current.
+    v = np.array([0.1, 0.15, 0.2, 0.3, 0.4])
     for r, _ in example_results.values():
         values, _ = cards.card_values(r, 0, "ngspice")
         card = dict(values)
@@ -64,7 +65,7 @@ def test_evaluator_matches_the_physics_core_at_low_injection(example_results):
         # low injection: well below the knee, where I / (1 + sqrt(I/IKF)) differs from I by < 0.5 %
         low = i_phys < 2.5e-5 * card["IKF"]
         assert low.sum() >= 2
-        np.testing.assert_allclose(i_eval[low], i_phys[low], rtol=1e-2)
+        np.testing.assert_allclose(i_eval[low], i_phys[low], rtol=0.1)
         vr = np.array([0.0, -1.0, -5.0])
         c_eval = evaluator.capacitance(card, vr, "ngspice", gmin=0.0)
         c_phys = extraction.predicted_capacitance(r, vr)[0]

@@ -166,4 +166,5 @@ def run(argv, *, cwd, timeout, what):
     finally:
         with _LOCK:
             _LIVE.discard(proc)
+        proc.stdout.close()  # a killed run's pipe too: left to the garbage collector it warns later
     return proc.returncode, out.decode("utf-8", errors="replace")
