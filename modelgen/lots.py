@@ -912,8 +912,10 @@ class LotWriter:
             return
         with bulk():
             cache = {}  # card columns formatted once, shared by the cards and the summary (and the child)
-            columns, _ = cards.card_columns(result, self.dialect)
+            columns, params = cards.card_columns(result, self.dialect)
             texts = [cards.format_numbers(v, cache) for _, v in columns]
+            for k in cards.left_out_names(self.dialect):  # each card lists them; so does the summary
+                cards.format_numbers(params[k], cache)
             first = self.rows == 0
             self._join()
             if self.fork and len(result) >= self.fork_min:
@@ -929,7 +931,7 @@ class LotWriter:
                 csv_text, items = _summary_part(result, cache, first)
                 self.commit.write("csv", csv_text)
                 self._spool_items(self.spool, items)
-            self.body.write(cards.table_cards(result, self.dialect, texts=texts)[0].encode("utf-8"))
+            self.body.write(cards.table_cards(result, self.dialect, texts=texts, cache=cache)[0].encode("utf-8"))
             self.numeric.append(_numeric(summary_columns(result)))
             if self.keep:
                 self.parts.append(_Part(result))

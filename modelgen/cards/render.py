@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import json
 import re
+import string
 from dataclasses import dataclass
 from operator import itemgetter
 from pathlib import Path
@@ -159,6 +160,10 @@ class Part:
     texts : list, optional
         The formatted columns of all the result's devices when already made
         (``format_numbers`` of each of :func:`card_columns`' columns).
+    cache : dict, optional
+        A :func:`~modelgen.cards.text.format_numbers` cache shared with other
+        texts of the same result (the summary): the values a dialect cannot
+        carry are formatted once for both.
     """
 
     result: Result
@@ -169,32 +174,46 @@ class Part:
     inputs: Sequence | None = None
     overrides: dict | None = None
     texts: list | None = None
+    cache: dict | None = None
+
+
+def _positional(text, keys):
+    """``text`` (a str.format pattern with named fields) with the fields numbered by their place in ``keys``."""
+    out = []
+    for literal, field_name, spec, conversion in string.Formatter().parse(text):
+        out.append(literal.replace("{", "{{").replace("}", "}}"))
+        if field_name is not None:
+            out.append("{%d%s%s}" % (keys.index(field_name), "!" + conversion if conversion else "",
+                                     ":" + spec if spec else ""))
+    return "".join(out)
 
 
 def _per_card_findings(result, rows):
-    """For each of ``rows``, the lines of its findings (all but those said once in the file header)."""
-    out = [""] * len(rows)
-    position = {}
-    for k, i in enumerate(rows):
-        position.setdefault(i, []).append(k)
-    picked = np.zeros(len(result), bool)
-    picked[np.asarray(rows, int)] = True
+    """For each of ``rows``, the lines of its findings (all but those said once in the file header).
+
+    Each finding's messages are made by one ``map`` over its value columns and
+    appended to the cards it applies to with one object-array addition.
+    """
+    rows = np.asarray(rows, int)
+    out = np.full(len(rows), "", dtype=object)
     for f in result.findings:
         if f.severity == "caution":
             continue  # a standing reminder, the same for every card: said once in the file header
-        mask = f.mask & picked
-        if not mask.any():
+        at = np.flatnonzero(np.asarray(f.mask)[rows])
+        if not len(at):
             continue
-        idx = np.flatnonzero(mask).tolist()
+        devices = rows[at]
         keys = list(f.values)
-        cols = [f.values[k][idx].tolist() if isinstance(f.values[k], np.ndarray) else [f.values[k]] * len(idx)
-                for k in keys]
-        fmt = f.text.format
-        for i, vals in zip(idx, zip(*cols) if keys else [()] * len(idx)):
-            msg = "\n* " + fmt(**dict(zip(keys, vals)))
-            for k in position[i]:
-                out[k] += msg
-    return out
+        if keys:
+            cols = [np.asarray(v)[devices].tolist() if isinstance(v, np.ndarray) else [v] * len(at)
+                    for v in f.values.values()]
+            messages = map(("\n* " + _positional(f.text, keys)).format, *cols)
+        else:
+            messages = ["\n* " + f.text.format()] * len(at)
+        added = np.empty(len(at), dtype=object)
+        added[:] = list(messages)
+        out[at] = out[at] + added
+    return out.tolist()
 
 
 def _inputs_lines(inputs):
@@ -263,7 +282,8 @@ def part_cards(part: Part, dialect):
     findings = _per_card_findings(result, pick)
     left = left_out_names(dialect)
     if left:
-        left_texts = [format_numbers(p[k][rows]) for k in left]
+        left_texts = [format_numbers(p[k], part.cache) if whole and part.cache is not None
+                      else format_numbers(p[k][rows]) for k in left]
         notes = [" ".join(f"{k}={t}" for k, t in zip(left, vals) if t is not None)
                  for vals in zip(*left_texts)]
         target = targets.get(dialect).name
@@ -412,19 +432,20 @@ def library(parts, dialect="spice3", title="diode model library", extra=()):
     return render(parts, dialect, title=title, extra=extra)
 
 
-def table_cards(result: Result, dialect="spice3", rows=None, corner_cards=(), texts=None):
+def table_cards(result: Result, dialect="spice3", rows=None, corner_cards=(), texts=None, cache=None):
     """The card texts of devices ``rows`` (default all), concatenated, and of any corner cards.
 
     ``corner_cards`` holds ``(section, name, i, comment)``: device ``i``
     again, named ``name``, with one more header line. ``texts``: the
-    formatted columns of all devices when already made.
+    formatted columns of all devices when already made; ``cache``: a
+    number-formatting cache shared with the summary (see :class:`Part`).
 
     Returns
     -------
     (body, corners) :
         The cards of ``rows`` as one text, and a list of the corner cards' texts.
     """
-    body = "".join(part_cards(Part(result, rows=rows, texts=texts), dialect))
+    body = "".join(part_cards(Part(result, rows=rows, texts=texts, cache=cache), dialect))
     corners = [part_cards(Part(result, rows=[i], names=[name], comments=[comment], texts=texts), dialect)[0]
                for _, name, i, comment in corner_cards]
     return body, corners
