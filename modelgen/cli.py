@@ -462,7 +462,7 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
             check_name(corner_name, key="--corner-name")
         except InputError as e:
             _fail(str(e))
-        if not cards.DIALECTS[dialect].sections:
+        if not targets.get(dialect).sections:
             _fail(f"the {dialect} dialect has no .lib sections; --corners needs a dialect with .lib sections "
                   f"(ngspice)")
     prefix = summary_prefix or os.path.splitext(output)[0] + ".summary"

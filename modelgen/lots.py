@@ -44,7 +44,6 @@ _NAME_SPEC = re.compile(r"(0?)([0-9]{0,2})d?")
 _NAME_WIDTH = 20
 
 
-_bulk = bulk  # the gc pause (modelgen.output.bulk) under its old name here
 
 
 @dataclass
@@ -181,7 +180,7 @@ def _factor(key, unit, file):
 
 def read_csv(path, *, sets=None, name_pattern=None, collect=True):
     """Read a CSV lot table into SI columns (see :func:`_read_csv` for the parameters)."""
-    with _bulk():
+    with bulk():
         return _read_csv(path, sets=sets, name_pattern=name_pattern, collect=collect)
 
 
@@ -532,7 +531,7 @@ def _header_keys(header):
 
 def derive(table: Table, *, chunk=CHUNK, progress=None):
     """The physics of every row of ``table``, chunk by chunk (see :func:`_derive`)."""
-    with _bulk():
+    with bulk():
         return _derive(table, chunk=chunk, progress=progress)
 
 
@@ -628,12 +627,6 @@ def _cells(v, cache=None):
     return list(map(str, np.asarray(v).tolist()))
 
 
-def summary_texts(cols, cache=None):
-    """The summary as (CSV text, the cells of each column) for :func:`summary_json` to reuse."""
-    cells = {k: _cells(v, cache) for k, v in cols.items()}
-    return _csv_header(cols) + _csv_rows(cells), cells
-
-
 def _csv_header(cols):
     return ",".join(cols) + "\n"
 
@@ -680,17 +673,6 @@ def statistics(cols):
                     "min": float(x.min()), "max": float(x.max()),
                     "percentiles": {str(p): float(q) for p, q in zip(PERCENTILES, pct)}}
     return stats
-
-
-def summary_json(cols, stats, skipped, cells=None):
-    """The summary as JSON: every column (a list per key), the statistics, the skipped rows.
-
-    Numbers are written with the summary CSV's text (shortest round-trip
-    repr, valid JSON); non-finite ones as null.
-    """
-    cells = cells or {k: _cells(v) for k, v in cols.items()}
-    columns = [(k, [_json_items(v, cells[k])[0]]) for k, v in cols.items()]
-    return "".join(_json_text(len(cols["name"]), stats, skipped, columns))
 
 
 def _ordinal(x):

@@ -1,4 +1,4 @@
-"""Reading a user's text file with errors that name it; writing outputs atomically."""
+"""Reading a user's text file with errors that name it (outputs are written by :mod:`modelgen.output`)."""
 
 from __future__ import annotations
 
@@ -65,19 +65,3 @@ def read_text(path, kind="input file", limit=READ_LIMIT, *, pipes=True):
         return data.decode("utf-8-sig")
     except UnicodeDecodeError as e:
         raise InputError(f"not UTF-8 text (bad byte at offset {e.start})", file=name) from None
-
-
-def write_atomic_many(texts, *, inputs=(), signals=False):
-    """Write ``{path: text}`` so that none is replaced unless all could be (see :class:`modelgen.output.Commit`)."""
-    from .output import write_files
-
-    write_files(texts, inputs=inputs, signals=signals)
-
-
-def write_atomic(path, text, *, inputs=(), signals=False):
-    """Write ``text`` to ``path`` through a temporary file and a rename.
-
-    The file at ``path`` is either left as it was or replaced whole; a
-    half-written output never exists under its name.
-    """
-    write_atomic_many({path: text}, inputs=inputs, signals=signals)

@@ -26,7 +26,8 @@ import pytest
 from click.testing import CliRunner
 from hypothesis import given, settings, strategies as st
 
-from modelgen.cards import DIALECTS, reader
+from modelgen.cards import reader
+from modelgen.targets import TARGETS as DIALECTS
 from modelgen.cli import main
 from modelgen.spice import check
 

@@ -13,7 +13,7 @@ import math
 import pytest
 from hypothesis import given, settings, strategies as st
 
-from modelgen import cards, description, extraction
+from modelgen import cards, description, extraction, targets
 from modelgen.cards.reader import Card, CardSyntaxError, parse_number, read_cards, read_file
 from modelgen.errors import InputError
 
@@ -230,7 +230,7 @@ def test_missing_file_names_it(tmp_path):
 
 # --- round trip --------------------------------------------------------------
 
-@pytest.mark.parametrize("dialect", sorted(cards.DIALECTS))
+@pytest.mark.parametrize("dialect", sorted(targets.TARGETS))
 def test_round_trip_of_a_modelgen_card(dialect):
     r = extraction.derive(description.load(ROOT / "examples" / "switching_diode.toml"))
     text = cards.card(r, 0, dialect=dialect)

@@ -12,18 +12,14 @@ every comment arrives as a safe line.
 
 from __future__ import annotations
 
-from .. import targets
 from . import reader
 from .documents import as_json, as_json_list, derived_units, dumps, json_safe, row_document
 from .render import (CAUTION, Part, card, card_columns, card_values, file_header, left_out_names, library,
                      part_cards, render, table_cards, table_library)
 from .text import CONTROL, comment_lines, format_number, format_numbers, safe, take
 
-#: The output dialects: :data:`modelgen.targets.TARGETS` (one object per target).
-DIALECTS = targets.TARGETS
-_take = take  # the name lots.py used before the split
 
-__all__ = ["reader", "CAUTION", "CONTROL", "DIALECTS", "Part", "as_json", "as_json_list", "card", "card_columns",
+__all__ = ["reader", "CAUTION", "CONTROL", "Part", "as_json", "as_json_list", "card", "card_columns",
            "card_values", "comment_lines", "derived_units", "dumps", "file_header", "format_number",
            "format_numbers", "json_safe", "left_out_names", "library", "part_cards", "render", "row_document",
            "safe", "table_cards", "table_library", "take"]

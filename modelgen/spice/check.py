@@ -21,7 +21,7 @@ Which simulators
 Cards written by modelgen carry a header naming their dialect (``* NAME:
 diode model card, modelgen 0.1.0, dialect ngspice (...)``, or for a library
 ``* TITLE: N cards, modelgen ..., dialect ...``); each card is run in the
-simulators its dialect is meant for (``modelgen.cards.DIALECTS[...]
+simulators its dialect is meant for (``modelgen.targets.TARGETS[...]
 .simulators``), the nearest such header above the card deciding. A card with
 no such header is run in every simulator modelgen knows. An explicit list of
 simulators overrides both.
@@ -248,29 +248,25 @@ def dialect_headers(text):
     with plain string operations (no regular expression runs on
     the file's text).
     """
-    from ..cards import DIALECTS
-
     found = []
     for number, line in enumerate(reader.split_lines(text), start=1):
         s = line.strip()
         if not s.startswith("*") or ", modelgen " not in s or ", dialect " not in s:
             continue
         name = s.rsplit(", dialect ", 1)[1].split(" (", 1)[0].strip()
-        found.append((number, name if name in DIALECTS else None))
+        found.append((number, name if name in targets.TARGETS else None))
     return found
 
 
 def meant_for(cards, text):
     """The simulators each card is meant for: from the nearest header above it, else all known."""
-    from ..cards import DIALECTS
-
     headers = dialect_headers(text)
     lines = [n for n, _ in headers]
     out = []
     for c in cards:
         k = bisect.bisect_left(lines, c.line) - 1
         dialect = headers[k][1] if k >= 0 else None
-        out.append(tuple(DIALECTS[dialect].simulators) if dialect else tuple(PACKAGES))
+        out.append(tuple(targets.TARGETS[dialect].simulators) if dialect else tuple(PACKAGES))
     return out
 
 
