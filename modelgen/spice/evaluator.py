@@ -191,13 +191,17 @@ def junction_current(card, vd, simulator="ngspice", gmin=None, temperature_c=Non
         [S], which is what multiplies TT in the diffusion capacitance.
     """
     s = simulator_of(simulator)
-    p = adjusted(card, temperature_c, s)
-    g = s.gmin if gmin is None else gmin
+    return _junction(adjusted(card, temperature_c, s), s, s.gmin if gmin is None else gmin, vd,
+                     "NS" in {k.upper() for k in card})
+
+
+def _junction(p, s, g, vd, own_sidewall_n):
+    """:func:`junction_current` from parameters already rescaled (:func:`adjusted`)."""
     vd = np.asarray(vd, float)
     vt = s.boltzmann * p["T"] / s.charge
     vte = p["N"] * vt
     csat = p["IS"] * p["AREA"]
-    if s.sidewall_current and "NS" not in {k.upper() for k in card}:
+    if s.sidewall_current and not own_sidewall_n:
         csat = csat + p["JSW"] * p["PJ"]
     ev = np.exp(np.minimum(vd / vte, 700.0))
     i_fwd = csat * (ev - 1)
@@ -257,11 +261,14 @@ def dc_current(card, v, simulator="ngspice", gmin=None, iterations=200, temperat
         Terminal current [A] and junction voltage [V].
     """
     v = np.asarray(v, float)
-    p = adjusted(card, temperature_c, simulator)
+    s = simulator_of(simulator)
+    p = adjusted(card, temperature_c, s)  # once, not at every bisection step
+    g = s.gmin if gmin is None else gmin
+    own_sidewall_n = "NS" in {k.upper() for k in card}
     rs = p["RS"] / p["AREA"]
 
     def current(x):
-        return junction_current(card, x, simulator, gmin, temperature_c)[0]
+        return _junction(p, s, g, x, own_sidewall_n)[0]
 
     if rs == 0:
         return current(v), v
