@@ -19,7 +19,7 @@ import click
 import numpy as np
 
 from . import __version__, cards, description, extraction, targets
-from .errors import InputError
+from .errors import InputError, one_line
 
 EXIT_INPUT = 2
 EXIT_MISMATCH = 1
@@ -128,19 +128,15 @@ class _Commands(click.Group):
             sys.exit(EXIT_INPUT)
         except click.UsageError as e:
             where = e.ctx.command_path if e.ctx is not None else "modelgen"
-            click.echo(f"modelgen: error: {_one_line(e.format_message())} (see '{where} --help')", err=True)
+            click.echo(f"modelgen: error: {one_line(e.format_message())} (see '{where} --help')", err=True)
             sys.exit(EXIT_INPUT)
         except click.ClickException as e:
-            click.echo(f"modelgen: error: {_one_line(e.format_message())}", err=True)
+            click.echo(f"modelgen: error: {one_line(e.format_message())}", err=True)
             sys.exit(e.exit_code)
         except click.Abort:
             click.echo("modelgen: interrupted", err=True)
             sys.exit(130)
         sys.exit(0)
-
-
-def _one_line(text):
-    return " ".join(str(text).split())
 
 
 @click.group(cls=_Commands, context_settings={"help_option_names": ["-h", "--help"]})
