@@ -19,6 +19,7 @@ import click
 import numpy as np
 
 from . import __version__, cards, description, extraction, targets
+from .constants import ZERO_CELSIUS
 from .errors import InputError, one_line
 
 EXIT_INPUT = 2
@@ -327,7 +328,7 @@ def _temperature_c(text, key):
     except ValueError:
         pass
     try:
-        return parse_quantity(text, "temperature", key=key) - 273.15
+        return parse_quantity(text, "temperature", key=key) - ZERO_CELSIUS
     except InputError as e:
         _fail(str(e))
 

@@ -26,6 +26,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from . import cards, extraction, targets
+from .constants import ZERO_CELSIUS
 from .device import Device
 from .errors import InputError
 from .spice import evaluator
@@ -91,14 +92,14 @@ def corner_temperatures(at=(), start=None, stop=None, step=None):
     temps = sorted({round(t, 9) for t in temps})
     lo, hi = TEMPERATURE_RANGE_K
     for t in (temps[0], temps[-1]):
-        if not lo < t + 273.15 < hi:
+        if not lo < t + ZERO_CELSIUS < hi:
             raise InputError(f"{t:g} degC is outside {lo:g}-{hi:g} K, the material models' range", key="--at")
     return temps
 
 
 def kelvin(temperatures_c):
     """degC -> K, rounded to 1e-9 K so that -40 degC is 233.15 K, not 233.14999999999998."""
-    return np.round(np.asarray(temperatures_c, float) + 273.15, 9)
+    return np.round(np.asarray(temperatures_c, float) + ZERO_CELSIUS, 9)
 
 
 def replicate(device: Device, temperatures):
@@ -173,7 +174,7 @@ def fit(corner_result, nominal, dialect="ngspice"):
     if others < 2:
         wanted = ", ".join(target.fitted_temperature_parameters())
         raise InputError(f"a temperature fit of {wanted} needs at least two corners besides the nominal "
-                         f"{t0 - 273.15:g} degC; got {others} (use --per-corner for cards at single temperatures)",
+                         f"{t0 - ZERO_CELSIUS:g} degC; got {others} (use --per-corner for cards at single temperatures)",
                          key="--at")
     ratio = t / t0
     vt = sim.boltzmann * t / sim.charge
@@ -215,7 +216,7 @@ def corner_errors(corner_result, nominal, dialect, overrides):
     sim = target.simulator
     values, _ = cards.card_values(corner_result, nominal, dialect, overrides=overrides)
     card = dict(values)
-    t_c = corner_result.derived["temperature"] - 273.15
+    t_c = corner_result.derived["temperature"] - ZERO_CELSIUS
     par = corner_result.params
     errors = {k: np.zeros(len(t_c)) for k in ("IS", "ISR", "CJO", "BV", "RS")
               if k in target.carries or k == "CJO"}
@@ -330,7 +331,7 @@ def run(device: Device, temperatures_c, dialect="spice3", *, per_corner=False, m
     """
     targets.get(dialect)
     temps = [float(t) for t in temperatures_c]
-    nominal_c = round(float(device.temperature[0]) - 273.15, 9)
+    nominal_c = round(float(device.temperature[0]) - ZERO_CELSIUS, 9)
     evaluated = sorted(set(temps) | ({nominal_c} if not per_corner else set()))
     result = evaluate(device, kelvin(evaluated))
     nominal = evaluated.index(nominal_c) if nominal_c in evaluated else None

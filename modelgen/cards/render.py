@@ -27,6 +27,7 @@ import jinja2
 import numpy as np
 
 from .. import __version__, targets
+from ..constants import ZERO_CELSIUS
 from ..extraction import PARAMETERS, Result
 from .text import CONTROL, comment_lines, format_numbers, safe
 
@@ -96,7 +97,7 @@ def card_columns(result: Result, dialect, overrides=None):
     d = targets.get(dialect)
     n = len(result)
     p = {k: np.asarray(v, float) for k, v in result.params.items()}
-    p["TNOM"] = np.round(result.derived["temperature"] - 273.15, 9)
+    p["TNOM"] = np.round(result.derived["temperature"] - ZERO_CELSIUS, 9)
     for k, v in (overrides or {}).items():
         p[k] = np.broadcast_to(np.asarray(v, float), (n,))
     if d.sidewall == "split":

@@ -64,7 +64,7 @@ def _params(card):
 def thermal_voltage(card, simulator="ngspice", temperature_c=None):
     """kT/q at ``temperature_c`` (default the card's TNOM) with the simulator's constants [V]."""
     s = simulator_of(simulator)
-    t = (_params(card)["TNOM"] if temperature_c is None else temperature_c) + 273.15
+    t = (_params(card)["TNOM"] if temperature_c is None else temperature_c) + 273.15  # the simulators' own CtoK
     return s.boltzmann * t / s.charge
 
 
