@@ -18,7 +18,7 @@ import sys
 import click
 import numpy as np
 
-from . import __version__, cards, description, extraction, targets
+from . import __version__, cards, description, extraction, leakage, targets
 from .constants import ZERO_CELSIUS
 from .errors import InputError, one_line
 
@@ -177,8 +177,12 @@ def main():
                    "sidewall terms), gnucap (gnucap's diode set).")
 @click.option("--section", metavar="NAME",
               help="Put the cards in a named library section (.lib NAME ... .endl NAME); ngspice dialect only.")
+@click.option("--form", type=click.Choice(["model", "subckt"]), default="model", show_default=True,
+              help="model: a .model card. subckt: a .subckt holding the diode and a behavioural source for the "
+                   "depletion region's reverse generation current, which no target's diode equations carry "
+                   "(ngspice dialect; instantiate it as X1 anode cathode NAME).")
 @click.option("-q", "--quiet", is_flag=True, help="Do not repeat the warnings on stderr.")
-def card_command(device_files, output, fmt, dialect, section, quiet):
+def card_command(device_files, output, fmt, dialect, section, form, quiet):
     """Derive the model card of each device described in DEVICE.toml.
 
     One file gives one card; several files give one library of cards (for
@@ -201,13 +205,25 @@ def card_command(device_files, output, fmt, dialect, section, quiet):
             loaded.append((extraction.derive(device), raw))
         except InputError as e:
             _fail(str(e.located(file=f)))
+    sources = [None] * len(loaded)
+    extra = ()
+    if form == "subckt":
+        if targets.get(dialect).leakage_template is None:
+            _fail(f"--form subckt: the {dialect} dialect has no behavioural source; use --dialect "
+                  + " or ".join(n for n, t in targets.TARGETS.items() if t.leakage_template))
+        sources = [leakage.closed_form(r, cards.card_columns(r, dialect)[1], leakage.window_reverse_bias(r, 0),
+                                       targets.get(dialect).equations) for r, _ in loaded]
+        extra = leakage.header_lines(sources)
     if fmt == "json":
         text = cards.as_json_list([cards.row_document(r, 0) for r, _ in loaded])
     elif len(loaded) == 1 and section is None:
-        text = cards.card(loaded[0][0], 0, dialect=dialect, inputs=loaded[0][1])
+        text = cards.card(loaded[0][0], 0, dialect=dialect, inputs=loaded[0][1], extra=extra,
+                          source=sources[0] and sources[0].values())
     else:
         try:
-            text = cards.library([(section, r, 0, raw) for r, raw in loaded], dialect=dialect)
+            parts = [cards.Part(r, rows=[0], section=section, inputs=[raw] if raw else None,
+                                source=g and g.values()) for (r, raw), g in zip(loaded, sources)]
+            text = cards.render(parts, dialect, title="diode model library", extra=extra)
         except ValueError as e:
             _fail(str(e))
     if not quiet:

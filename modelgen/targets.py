@@ -126,6 +126,10 @@ class Target:
     template, library_template : str
         Jinja2 templates of one card and of a library: a name in the
         package's ``templates/`` folder, or an absolute path.
+    leakage_template : str or None
+        Template of the form that wraps the diode and a behavioural source for
+        the reverse generation current (:mod:`modelgen.leakage`) in a
+        subcircuit; None where the target has no such source.
     """
 
     name: str
@@ -138,6 +142,7 @@ class Target:
     cost: dict = field(default_factory=dict)
     template: str = "card.j2"
     library_template: str = "library.j2"
+    leakage_template: str | None = None
 
     @property
     def simulator(self):
@@ -224,7 +229,8 @@ register(Target("spice3", "Berkeley SPICE3 level-1 diode", carries=_LEVEL1, side
 register(Target("ngspice", "ngspice level-1 diode",
                 carries=("IS", "JSW", "N", "RS", "CJO", "CJSW", "VJ", "PHP", "M", "MJSW", "FC", "FCS", "TT",
                          "BV", "IBV", "EG", "XTI", "ISR", "NR", "IKF", "PJ", "TCV", "TRS1", "TRS2", "TNOM"),
-                sidewall="split", sections=True, equations="ngspice", simulators=("ngspice",), cost=COST))
+                sidewall="split", sections=True, equations="ngspice", simulators=("ngspice",), cost=COST,
+                leakage_template="subckt.j2"))
 # gnucap 0.36 diode: no ISR/NR/IKF; BV is accepted but its default diode path has no breakdown
 register(Target("gnucap", "gnucap diode",
                 carries=("IS", "N", "RS", "CJO", "VJ", "M", "FC", "TT", "EG", "XTI", "TNOM"),

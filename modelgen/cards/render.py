@@ -165,6 +165,11 @@ class Part:
         A :func:`~modelgen.cards.text.format_numbers` cache shared with other
         texts of the same result (the summary): the values a dialect cannot
         carry are formatted once for both.
+    source : dict, optional
+        A generation source per device (:meth:`modelgen.leakage.Generation.values`:
+        arrays over all the result's devices by :data:`SOURCE_KEYS`): each card
+        becomes a ``.subckt`` holding the diode and the source, from the
+        target's ``leakage_template``.
     """
 
     result: Result
@@ -176,6 +181,7 @@ class Part:
     overrides: dict | None = None
     texts: list | None = None
     cache: dict | None = None
+    source: dict | None = None
 
 
 def _positional(text, keys):
@@ -229,7 +235,11 @@ def _inputs_lines(inputs):
 _TOKEN = "\x01"
 
 
-def _fill_pattern(dialect, names):
+#: The numbers of a generation source (:mod:`modelgen.leakage`), in template order.
+SOURCE_KEYS = ("IG", "IE", "M", "VJ", "VG")
+
+
+def _fill_pattern(dialect, names, source=False):
     """A str.format pattern for one card with these parameters, made by rendering the card template.
 
     The template is rendered once with placeholder tokens for the header
@@ -240,7 +250,14 @@ def _fill_pattern(dialect, names):
     """
     token = lambda k: f"{_TOKEN}{k}{_TOKEN}"  # noqa: E731
     proto = {"header": [token(0)], "name": token(1), "params": [(k, token(j + 2)) for j, k in enumerate(names)]}
-    text = environment().get_template(targets.get(dialect).template).render(card=proto)
+    target = targets.get(dialect)
+    template = target.template
+    if source:
+        if target.leakage_template is None:
+            raise ValueError(f"the {target.name} dialect has no generation-source form")
+        template = target.leakage_template
+        proto["source"] = {k: token(len(names) + 2 + j) for j, k in enumerate(SOURCE_KEYS)}
+    text = environment().get_template(template).render(card=proto)
     text = text.replace("{", "{{").replace("}", "}}")
     return re.sub(f"{_TOKEN}(\\d+){_TOKEN}", lambda m: "{" + m.group(1) + "}", text)
 
@@ -298,9 +315,13 @@ def part_cards(part: Part, dialect):
     _, first, group_of = np.unique(codes, return_index=True, return_inverse=True)
     group_of = group_of.ravel()
     out = [None] * m
+    wrapped = part.source is not None
+    if wrapped:
+        texts = texts + [format_numbers(np.asarray(part.source[k], float)[rows]) for k in SOURCE_KEYS]
+    extra_cols = list(range(len(columns), len(texts)))
     for g, f in enumerate(first.tolist()):
-        cols = [j for j, ok in enumerate(present[f]) if ok]
-        fill = _fill_pattern(dialect, [names[j] for j in cols]).format
+        cols = [j for j, ok in enumerate(present[f]) if ok] + extra_cols
+        fill = _fill_pattern(dialect, [names[j] for j in cols if j < len(names)], wrapped).format
         if len(first) == 1:
             return list(map(fill, heads, model, *[texts[j] for j in cols]))
         idx = np.flatnonzero(group_of == g).tolist()
@@ -399,7 +420,7 @@ def render(parts, dialect, *, title, extra=(), bodies=None):
                                                                                      sections=sections)
 
 
-def card(result: Result, i=0, dialect="spice3", inputs=None, overrides=None, extra=()):
+def card(result: Result, i=0, dialect="spice3", inputs=None, overrides=None, extra=(), source=None):
     """The model card of device ``i`` as a file of one card.
 
     Parameters
@@ -417,8 +438,10 @@ def card(result: Result, i=0, dialect="spice3", inputs=None, overrides=None, ext
         Parameters replacing the derived ones (a temperature fit's).
     extra : sequence of str
         More header lines (made safe like all header text).
+    source : dict, optional
+        A generation source (see :class:`Part`): the card becomes a ``.subckt``.
     """
-    part = Part(result, rows=[i], inputs=[inputs] if inputs else None, overrides=overrides)
+    part = Part(result, rows=[i], inputs=[inputs] if inputs else None, overrides=overrides, source=source)
     return render([part], dialect, title=f"{result.device.name[i]}: diode model card", extra=extra)
 
 

@@ -195,6 +195,54 @@ def junction_current(card, vd, simulator="ngspice", gmin=None, temperature_c=Non
                      "NS" in {k.upper() for k in card})
 
 
+def _reverse_tail(csat, vte, vd):
+    """SPICE3's reverse branch below -3 N Vt: -csat (1 + (3 N Vt / (e Vd))^3) and its conductance.
+
+    Arrays broadcast together (``csat`` and ``vte`` may be columns over cards).
+    """
+    with np.errstate(divide="ignore", invalid="ignore"):
+        arg = (3 * vte / (vd * np.e)) ** 3
+    return -csat * (1 + arg), csat * 3 * arg / vd
+
+
+def deep_reverse_current(is_total, n, vd, thermal_voltage, simulator="ngspice"):
+    """Junction current of many cards at reverse junction voltages, vectorised over cards and biases [A].
+
+    What the simulator's level-1 diode gives well in reverse (below -3 N Vt,
+    short of breakdown; ISR is not applied there in ngspice 39, and gnucap has
+    neither ISR nor the cubic tail), plus GMIN: the saturation current's
+    reverse branch of :func:`junction_current`, for cards given as columns.
+
+    Parameters
+    ----------
+    is_total : array_like
+        Bottom plus sidewall saturation current of each card [A].
+    n : array_like
+        Emission coefficient N.
+    vd : array_like
+        Junction voltages [V], each below -3 N Vt (checked).
+    thermal_voltage : array_like
+        kT/q at the card's temperature with the simulator's constants [V].
+    simulator : str or Simulator
+
+    Returns
+    -------
+    numpy.ndarray
+        [A], negative.
+    """
+    s = simulator_of(simulator)
+    vd = np.asarray(vd, float)
+    vte = np.asarray(n, float) * np.asarray(thermal_voltage, float)
+    if not np.all(vd < -3 * vte):
+        raise ValueError("deep_reverse_current: every bias must lie below -3 N Vt")
+    csat = np.asarray(is_total, float)
+    if s.reverse_tail:
+        i = _reverse_tail(csat, vte, vd)[0]
+    else:
+        i = csat * np.expm1(vd / vte)
+    return i + s.gmin * vd
+
+
 def _junction(p, s, g, vd, own_sidewall_n):
     """:func:`junction_current` from parameters already rescaled (:func:`adjusted`)."""
     vd = np.asarray(vd, float)
@@ -219,10 +267,7 @@ def _junction(p, s, g, vd, own_sidewall_n):
         i_fwd = i_fwd + i_rec * fac
     if s.reverse_tail:
         forward = vd >= -3 * vte
-        with np.errstate(divide="ignore", invalid="ignore"):
-            arg = (3 * vte / (vd * np.e)) ** 3
-        i_rev = -csat * (1 + arg)
-        g_rev = csat * 3 * arg / vd
+        i_rev, g_rev = _reverse_tail(csat, vte, vd)
         xbv = _breakdown_knee(p, csat, vt) if s.breakdown else np.inf
         vtb = p["NBV"] * vt
         in_bd = vd < -xbv
