@@ -62,6 +62,9 @@ class Simulator:
         not divided by N).
     runner : str
         Module (under :mod:`modelgen.spice`) that runs it in batch mode.
+    behavioural_source : bool
+        It runs modelgen's generation source (a ``B`` element with ``min``,
+        ``pow`` and ``exp``, :mod:`modelgen.leakage`), so ``check`` can prove it.
     check_chunk : int
         Cards per simulator process in ``check`` (measured on a 2-core
         machine with cards from ``modelgen lots``: gnucap takes 0.06 s for 25
@@ -83,6 +86,7 @@ class Simulator:
     temperature_law: str
     runner: str
     check_chunk: int = 100
+    behavioural_source: bool = False
 
     @property
     def xti_per_n(self):
@@ -160,7 +164,7 @@ SIMULATORS = {
     "ngspice": Simulator("ngspice", package="ngspice", boltzmann=1.38064852e-23, charge=1.6021766208e-19,
                          gmin=1e-12, reverse_tail=True, breakdown=True, recombination=True, knee=True,
                          sidewall_current=True, sidewall_capacitance_fc="FCS", temperature_law="spice3",
-                         runner="ngspice", check_chunk=200),
+                         runner="ngspice", check_chunk=200, behavioural_source=True),
     # gnucap 0.36: include/constant.h, the values marked "(spice)"; its default diode
     # path has no reverse tail, no breakdown, no GMIN, and rescales IS alone
     "gnucap": Simulator("gnucap", package="gnucap", boltzmann=1.3806226e-23, charge=1.6021918e-19,

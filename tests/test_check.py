@@ -420,7 +420,7 @@ def test_any_plausible_card_gives_finite_references_or_one_error(data):
     simulator = data.draw(st.sampled_from(sorted(check.PACKAGES)))
     for t in (card.params.get("TNOM", 27.0), *check.TEMPERATURE_RANGE):
         try:
-            i_ref, c_ref = check._reference(card, simulator, t, "x.lib")
+            i_ref, c_ref, _ = check._reference(card, simulator, t, "x.lib")
         except reader.CardSyntaxError as e:
             assert "non-finite" in str(e) and "x.lib" in str(e)
         else:

@@ -181,3 +181,47 @@ def test_subckt_form_from_the_command_line_names_its_source():
     name = extraction.derive(description.load(ABRUPT[0])).device.name[0]
     assert f".subckt {name} a k" in lines and f".ends {name}" in lines
     assert sum(line.startswith("B1 a k I = ") for line in lines) == 1
+
+
+def _subckt_library(tmp_path):
+    out = tmp_path / "wrapped.lib"
+    res = run("card", *EXAMPLES, "--form", "subckt", "--dialect", "ngspice", "-q", "-o", out)
+    assert res.exit_code == 0, res.output
+    return out
+
+
+def test_reader_takes_the_source_numbers_of_each_subcircuit(tmp_path):
+    from modelgen.cards import reader
+
+    found = reader.read_file(_subckt_library(tmp_path))
+    assert len(found) == len(EXAMPLES)
+    for c in found:
+        assert c.wrapper == c.name
+        assert set(c.source) == {"IG", "IE", "M", "VJ", "VG"}
+        assert c.source["VJ"] == c.params["VJ"] and c.source["M"] == c.params["M"]
+
+
+def test_reader_ignores_other_behavioural_lines_and_refuses_an_open_subcircuit():
+    from modelgen.cards import reader
+
+    text = (".subckt W a k\nD1 a k W\nB1 a x I = -(1e-9 * pow(1 - min(V(a,x), 0) / 0.7, 0.5) - 1e-10) * "
+            "(1 - exp(min(V(a,x), 0) / 0.05))\n.model W D (IS=1e-14)\n.ends W\n")
+    (card,) = reader.read_cards(text)
+    assert card.wrapper == "W" and card.source is None  # across other nodes than the ports: not ours
+    with pytest.raises(reader.CardSyntaxError, match="never closed"):
+        reader.read_cards(".subckt W a k\n.model W D (IS=1e-14)\n")
+
+
+def test_check_runs_the_generation_source_in_ngspice(tmp_path, monkeypatch):
+    """check passes the .subckt form, and it does compare the reverse currents: with the evaluator's source
+    law doubled, the same file fails."""
+    need("ngspice")
+    lib = _subckt_library(tmp_path)
+    res = run("check", lib)
+    assert res.exit_code == 0, res.output
+    assert res.output.count(" ok") == len(EXAMPLES)
+    doubled = leakage.source_current
+    monkeypatch.setattr(leakage, "source_current", lambda *a: 2 * doubled(*a))
+    res = run("check", lib)
+    assert res.exit_code == 1
+    assert res.output.count("MISMATCH") == len(EXAMPLES)

@@ -48,10 +48,17 @@ What is refused, with a :class:`CardSyntaxError` that gives the line:
 * ``.lib`` sections nested, unclosed, or closed with another name, and an
   ``.endl`` with no open section.
 
-Not handled: subcircuit scope (a ``.model`` inside ``.subckt`` ... ``.ends``
-is returned like any other), the title line of a full netlist (the text is
-read the way a ``.include``-d library is: the first line is an ordinary line),
-and ``.include``/``.lib FILE`` references are not followed.
+Subcircuits: a ``.model`` inside ``.subckt NAME a k`` ... ``.ends`` is
+returned like any other, with ``wrapper`` the subcircuit's name; if the
+subcircuit also holds modelgen's generation source (:mod:`modelgen.leakage`)
+across its two ports, in exactly the form modelgen writes it
+(``B... a k I = -(IG * pow(1 - min(V(a,k), 0) / VJ, M) - IE) * (1 - exp(min(V(a,k), 0) / VG))``),
+its five numbers are the card's ``source``. Any other element is ignored, as
+outside subcircuits. A ``.subckt`` inside another, or one never closed, is refused.
+
+Not handled: the title line of a full netlist (the text is read the way a
+``.include``-d library is: the first line is an ordinary line), and
+``.include``/``.lib FILE`` references are not followed.
 """
 
 from __future__ import annotations
@@ -59,7 +66,7 @@ from __future__ import annotations
 import decimal
 import math
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from ..errors import InputError
 from ..textio import read_text
@@ -94,6 +101,11 @@ class Card:
     section : str or None
         Name of the enclosing ``.lib NAME`` ... ``.endl`` section, as written
         on the ``.lib`` line; None outside any section.
+    wrapper : str or None
+        Name of the enclosing ``.subckt``, None outside one.
+    source : dict or None
+        The generation source beside the diode in that subcircuit, by name
+        (IG, IE, M, VJ, VG), when it has modelgen's form.
     """
 
     name: str
@@ -101,6 +113,8 @@ class Card:
     params: dict = field(hash=False)
     line: int
     section: str | None = None
+    wrapper: str | None = None
+    source: dict | None = field(default=None, hash=False)
 
 
 # Scale factors (ngspice manual, Table 2.2 "Ngspice scale factors"), as exact
@@ -322,6 +336,30 @@ def _card(pieces, section, file):
     return Card(name=name, type=mtype.upper(), params=params, line=first, section=section)
 
 
+_NUM = r"([^\s(),*/]+)"
+#: modelgen's generation source (templates/subckt.j2), blanks optional where the template has them.
+_SOURCE = re.compile(
+    r"B\w*\s+(\S+)\s+(\S+)\s+I\s*=\s*-\(\s*" + _NUM + r"\s*\*\s*pow\(\s*1\s*-\s*min\(\s*V\(\s*(\S+?)\s*,\s*(\S+?)\s*\)"
+    r"\s*,\s*0\s*\)\s*/\s*" + _NUM + r"\s*,\s*" + _NUM + r"\s*\)\s*-\s*" + _NUM + r"\s*\)\s*\*\s*\(\s*1\s*-\s*exp\("
+    r"\s*min\(\s*V\(\s*(\S+?)\s*,\s*(\S+?)\s*\)\s*,\s*0\s*\)\s*/\s*" + _NUM + r"\s*\)\s*\)\Z", re.IGNORECASE)
+_SOURCE_KEYS = ("IG", "VJ", "M", "IE", "VG")
+
+
+def _source(pieces, ports, file):
+    """The five numbers of modelgen's generation source on this B line across ``ports``, else None."""
+    text = " ".join(s for _, s in pieces)
+    m = _SOURCE.match(text)
+    if not m:
+        return None
+    a, k, ig, a1, k1, vj, mg, ie, a2, k2, vg = m.groups()
+    nodes = [x.lower() for x in (a, k, a1, k1, a2, k2)]
+    if ports is None or nodes != [p.lower() for p in ports] * 3:
+        return None
+    line = pieces[0][0]
+    values = [parse_number(v, file=file, line=line, key=key) for v, key in zip((ig, vj, mg, ie, vg), _SOURCE_KEYS)]
+    return dict(zip(_SOURCE_KEYS, values))
+
+
 def read_cards(text, *, file=None):
     """Every ``.model`` card in ``text``, in order, as :class:`Card` objects.
 
@@ -332,9 +370,28 @@ def read_cards(text, *, file=None):
     cards = []
     section = None                       # (name, line of the .lib)
     seen = {}                            # (section, NAME) -> line of its .model
+    wrapper = None                       # [name, line, ports, first card index, source]
     for first, pieces in _logical_lines(str(text), file):
         words = " ".join(s for _, s in pieces).split()
         keyword = words[0].lower()
+        if keyword == ".subckt":
+            if wrapper is not None:
+                raise CardSyntaxError(f".subckt inside .subckt {wrapper[0]} (opened on line {wrapper[1]})",
+                                      file=file, row=first)
+            if len(words) < 2:
+                raise CardSyntaxError(".subckt without a name", file=file, row=first)
+            wrapper = [words[1], first, words[2:4] if len(words) >= 4 else None, len(cards), None]
+            continue
+        if keyword == ".ends":
+            if wrapper is not None:
+                cards[wrapper[3]:] = [replace(c, wrapper=wrapper[0], source=wrapper[4]) for c in cards[wrapper[3]:]]
+            wrapper = None
+            continue
+        if wrapper is not None and keyword.startswith("b"):
+            found = _source(pieces, wrapper[2], file)
+            if found is not None:
+                wrapper[4] = found
+            continue
         if keyword == ".model":
             if len(cards) >= MAX_CARDS:
                 raise CardSyntaxError(f"more than {MAX_CARDS} .model cards: split the library", file=file,
@@ -369,6 +426,8 @@ def read_cards(text, *, file=None):
             break
     if section is not None:
         raise CardSyntaxError(f".lib {section[0]} is never closed with .endl", file=file, row=section[1])
+    if wrapper is not None:
+        raise CardSyntaxError(f".subckt {wrapper[0]} is never closed with .ends", file=file, row=wrapper[1])
     return cards
 
 

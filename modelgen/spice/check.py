@@ -4,7 +4,10 @@ What is checked, and what is not
 --------------------------------
 For each diode card, each simulator it is checked in computes a DC curve
 (:data:`DC_VOLTS`: 0.2 to 0.8 V forward in 50 mV steps) and the small-signal
-capacitance at :data:`CAP_VOLTS` (0, -1 and -5 V, from an AC analysis), at
+capacitance at :data:`CAP_VOLTS` (0, -1 and -5 V, from an AC analysis), and
+for a card inside a ``.subckt`` with modelgen's generation source
+(:mod:`modelgen.leakage`) the subcircuit's current at :data:`REVERSE_VOLTS`
+(-1 and -5 V) where the simulator runs behavioural sources, at
 one temperature: the card's TNOM, or the temperature asked for. modelgen's
 evaluator (:mod:`modelgen.spice.evaluator`) computes the same points from
 the same parameters with that simulator's equations and constants, at the
@@ -68,6 +71,8 @@ from . import evaluator
 
 DC_VOLTS = np.round(np.arange(0.2, 0.8 + 1e-9, 0.05), 12)
 CAP_VOLTS = np.array([0.0, -1.0, -5.0])
+#: Reverse biases at which a card's generation source (a ``.subckt`` form) is checked [V].
+REVERSE_VOLTS = np.array([-1.0, -5.0])
 #: Relative agreement asked of simulator and evaluator.
 TOLERANCE = 1e-3
 #: Simulators modelgen knows how to run, and the Debian package of each.
@@ -287,19 +292,31 @@ def _number(value):
     return text[:-2] if text.endswith(".0") else text
 
 
-def deck_cards(cards):
+def deck_cards(cards, sources=False):
     """The ``.model`` lines of a deck, rebuilt from the parsed numbers, and the deck's names.
 
     Nothing of the file's text is copied: the name is made here, the keys
     are identifiers the reader checked, the values are formatted floats.
+    With ``sources``, each card that has a generation source also gets a
+    subcircuit ``<label>X a k`` holding the diode and the source, written
+    here in modelgen's form from its five numbers; the third value returned
+    maps those labels to their subcircuit names.
     """
     labels = [f"{_LABEL}{k}" for k in range(len(cards))]
     lines = []
+    wrapped = {}
     for label, c in zip(labels, cards):
         lines.append(f".model {label} D (")
         lines += [f"+ {key}={_number(value)}" for key, value in c.params.items()]
         lines.append("+ )")
-    return "\n".join(lines) + "\n", labels
+        if sources and c.source is not None:
+            g = {k: _number(v) for k, v in c.source.items()}
+            wrapped[label] = f"{label}X"
+            lines += [f".subckt {label}X a k", f"D1 a k {label}",
+                      f"B1 a k I = -({g['IG']} * pow(1 - min(V(a,k), 0) / {g['VJ']}, {g['M']}) - {g['IE']}) "
+                      f"* (1 - exp(min(V(a,k), 0) / {g['VG']}))", f".ends {label}X"]
+    text = "\n".join(lines) + "\n"
+    return (text, labels, wrapped) if sources else (text, labels)
 
 
 #: Magnitudes below which agreement is judged absolutely (to TOLERANCE times
@@ -328,22 +345,33 @@ def _user_names(messages, labels, cards):
 
 
 def _reference(card, simulator, temperature, file):
-    """The evaluator's DC current and capacitance for one card [A], [F]."""
+    """The evaluator's DC current and capacitance for one card [A], [F], and with a generation source
+    its subcircuit's current at :data:`REVERSE_VOLTS` (the diode plus :func:`modelgen.leakage.source_current`)."""
     params = card.params  # what a card leaves out takes the SPICE defaults (evaluator.DEFAULTS)
     with np.errstate(all="ignore"):  # each simulator's own default GMIN, as its runner leaves it
         i_ref, _ = evaluator.dc_current(params, DC_VOLTS, simulator, temperature_c=temperature)
         c_ref = evaluator.capacitance(params, CAP_VOLTS, simulator, temperature_c=temperature)
-    if not (np.all(np.isfinite(i_ref)) and np.all(np.isfinite(c_ref))):
+        r_ref = None
+        if card.source is not None and targets.SIMULATORS[simulator].behavioural_source:
+            from ..leakage import source_current
+
+            g = card.source
+            r_ref = (evaluator.dc_current(params, REVERSE_VOLTS, simulator, temperature_c=temperature)[0]
+                     + source_current(g["IG"], g["IE"], g["M"], g["VJ"], g["VG"], REVERSE_VOLTS))
+    if not (np.all(np.isfinite(i_ref)) and np.all(np.isfinite(c_ref))
+            and (r_ref is None or np.all(np.isfinite(r_ref)))):
         raise reader.CardSyntaxError(f".model {card.name}: its {simulator} equations give a non-finite "
                                      f"current or capacitance at {temperature:g} degC", file=file, row=card.line)
-    return i_ref, c_ref
+    return i_ref, c_ref, r_ref
 
 
 def _simulate_chunk(simulator, chunk, temperature, timeout):
-    library, labels = deck_cards(chunk)
+    sources = targets.SIMULATORS[simulator].behavioural_source
+    library, labels, *wrapped = deck_cards(chunk, sources)
     rs = {label: c.params.get("RS", 0.0) for label, c in zip(labels, chunk)}
+    extra = {"wrapped": wrapped[0], "reverse_volts": REVERSE_VOLTS} if sources and wrapped[0] else {}
     return runner(simulator).simulate(library, labels, DC_VOLTS, CAP_VOLTS, rs=rs, temperature_c=temperature,
-                                      timeout=timeout), labels
+                                      timeout=timeout, **extra), labels
 
 
 def _run_chunk(pool, simulator, chunk, temperature, timeout, file):
@@ -352,11 +380,18 @@ def _run_chunk(pool, simulator, chunk, temperature, timeout, file):
     refs = [_reference(c, simulator, temperature, file) for c in chunk]
     got, labels = pending.result()
     out = []
-    for label, c, (i_ref, c_ref) in zip(labels, chunk, refs):
+    for label, c, (i_ref, c_ref, r_ref) in zip(labels, chunk, refs):
         r = got[label]
-        out.append(Outcome(c.name, simulator, c.section, _relative_error(r["current"], i_ref, CURRENT_FLOOR),
-                           _relative_error(r["capacitance"], c_ref, CAPACITANCE_FLOOR),
-                           _user_names(list(r.get("messages", [])), labels, chunk), temperature))
+        dc = _relative_error(r["current"], i_ref, CURRENT_FLOOR)
+        messages = _user_names(list(r.get("messages", [])), labels, chunk)
+        if r_ref is not None:
+            dc = max(dc, _relative_error(r.get("reverse", []), r_ref, CURRENT_FLOOR))
+        elif c.source is not None:
+            messages.append(f"its generation source needs a behavioural source, which {simulator} lacks: "
+                            "only the diode was checked")
+        out.append(Outcome(c.name, simulator, c.section, dc, _relative_error(r["capacitance"], c_ref,
+                                                                             CAPACITANCE_FLOOR),
+                           messages, temperature))
     return out
 
 

@@ -31,16 +31,24 @@ def available():
     return shutil.which("ngspice") is not None
 
 
-def _deck(library_text, names, dc_volts, cap_volts, temperature_c, gmin, out_dc, out_ac):
+def _deck(library_text, names, dc_volts, cap_volts, temperature_c, gmin, out_dc, out_ac, wrapped=None,
+          reverse_volts=()):
+    wrapped = wrapped or {}
     lines = ["* modelgen check deck", without_comments(library_text), "VSWEEP sweep 0 DC 0"]
+    reverse = []
     for k, name in enumerate(names):
         lines.append(f"VM{k} sweep m{k} DC 0")
         lines.append(f"DDC{k} m{k} 0 {name}")
+        if name in wrapped:  # the subcircuit at fixed reverse biases: constant columns of the DC table
+            for j, v in enumerate(reverse_volts):
+                lines.append(f"VR{k}_{j} r{k}_{j} 0 DC {float(v)!r}")
+                lines.append(f"XR{k}_{j} r{k}_{j} 0 {wrapped[name]}")
+                reverse.append(f"i(VR{k}_{j})")
         for j, v in enumerate(cap_volts):
             lines.append(f"VC{k}_{j} c{k}_{j} 0 DC {float(v)!r} AC 1")
             lines.append(f"DAC{k}_{j} c{k}_{j} 0 {name}")
     lines.append(f".options temp={float(temperature_c)!r} gmin={gmin!r} reltol=1e-6 abstol=1e-24 vntol=1e-9")
-    dc_vecs = " ".join(f"i(VM{k})" for k in range(len(names)))
+    dc_vecs = " ".join([f"i(VM{k})" for k in range(len(names))] + reverse)
     ac_vecs = " ".join(f"i(VC{k}_{j})" for k in range(len(names)) for j in range(len(cap_volts)))
     lines += [".control", "set wr_singlescale", "set wr_vecnames", "option numdgt=15"]
     dc = np.asarray(dc_volts, float)
@@ -65,7 +73,7 @@ def _read_table(path):
 
 
 def simulate(library_text, names, dc_volts, cap_volts, *, rs=None, temperature_c=27.0, gmin=1e-12,
-             timeout=120.0):
+             timeout=120.0, wrapped=None, reverse_volts=()):
     """Run ngspice once for all models in ``library_text``.
 
     Parameters
@@ -87,13 +95,18 @@ def simulate(library_text, names, dc_volts, cap_volts, *, rs=None, temperature_c
         GMIN [S].
     timeout : float
         [s].
+    wrapped : dict, optional
+        Model name -> name of a subcircuit (ports a, k) to run at ``reverse_volts``.
+    reverse_volts : array_like
+        Fixed biases for those subcircuits [V].
 
     Returns
     -------
     dict
         ``{name: {"voltage": array [V], "current": array [A], "capacitance": array [F],
-        "messages": list of str}}``; the messages are ngspice's warning and error lines
-        that name the model, or all of them where none does.
+        "messages": list of str}}``, plus ``"reverse"`` (the subcircuit's current, anode to
+        cathode, at each of ``reverse_volts`` [A]) for the wrapped names; the messages are
+        ngspice's warning and error lines that name the model, or all of them where none does.
 
     Raises
     ------
@@ -108,7 +121,8 @@ def simulate(library_text, names, dc_volts, cap_volts, *, rs=None, temperature_c
         out_dc, out_ac = os.path.join(tmp, "dc.txt"), os.path.join(tmp, "ac.txt")
         deck = os.path.join(tmp, "deck.cir")
         with open(deck, "w") as fh:
-            fh.write(_deck(library_text, names, dc_volts, cap_volts, temperature_c, gmin, out_dc, out_ac))
+            fh.write(_deck(library_text, names, dc_volts, cap_volts, temperature_c, gmin, out_dc, out_ac,
+                           wrapped, reverse_volts))
         code, log = run(["ngspice", "-b", deck], cwd=tmp, timeout=timeout, what="ngspice")
         messages = [ln.strip() for ln in log.splitlines() if _PROBLEM.search(ln)]
         # ngspice -b exits 1 after a .control run even when all went well: judge by its output
@@ -124,6 +138,12 @@ def simulate(library_text, names, dc_volts, cap_volts, *, rs=None, temperature_c
             result[name] = {"voltage": dc[:, 0], "current": dc[:, 1 + k],
                             # ngspice names the model in some messages, only the line in others
                             "messages": mine or messages}
+        column = 1 + len(names)
+        for name in names:
+            if name in (wrapped or {}):
+                # the source's current leaves its + node into the subcircuit: the device's is the opposite
+                result[name]["reverse"] = -dc[0, column:column + len(reverse_volts)]
+                column += len(reverse_volts)
         if len(cap_volts):
             _, ac = _read_table(out_ac)
             omega = 2 * np.pi * FREQUENCY
