@@ -454,7 +454,7 @@ def _profile_rules(columns, profile, num, n, fail):
     fail(table & named & ~read, "profile_table", "a profile table is read only from a device description "
          "(a TOML file), not from a lot table: lots take abrupt, linear, erfc and gaussian profiles")
     cs, ell, xj = num["surface_concentration"], num["characteristic_length"], num["junction_depth"]
-    fail(diffused & np.isnan(cs), "surface_concentration", "a {kind} profile needs surface_concentration, "
+    fail(diffused & np.isnan(cs), "surface_concentration", "profile = \"{kind}\" needs surface_concentration, "
          "the diffused p side's surface acceptor density (e.g. \"1e20 cm^-3\")", kind)
     fail(~diffused & ~np.isnan(cs), "surface_concentration",
          "applies only to profile = \"erfc\" or \"gaussian\"")
@@ -462,7 +462,7 @@ def _profile_rules(columns, profile, num, n, fail):
          "applies only to profile = \"erfc\" or \"gaussian\"")
     fail(diffused & ~np.isnan(ell) & ~np.isnan(xj), "characteristic_length",
          "give characteristic_length or junction_depth, not both")
-    fail(diffused & np.isnan(ell) & np.isnan(xj), "junction_depth", "a {kind} profile needs junction_depth "
+    fail(diffused & np.isnan(ell) & np.isnan(xj), "junction_depth", "profile = \"{kind}\" needs junction_depth "
          "(where its net doping changes sign, e.g. \"0.5 um\") or characteristic_length", kind)
     fail(table & ~np.isnan(xj), "junction_depth", "the profile table gives the junction depth: leave "
          "junction_depth out")

@@ -456,7 +456,7 @@ def _side_doping(side, name, mat, t_ref):
 
 
 #: Bisection steps that place the light side's depletion edge of the equivalent abrupt junction on a profile.
-_EQUIVALENT_STEPS = 60
+_EQUIVALENT_STEPS = 48
 
 
 def diffused_junction(device, mat):
@@ -551,8 +551,6 @@ def _equivalent_abrupt(device, mat, env, problems):
         The devices with those rows' dopings and thicknesses replaced (and the sidewall height set to the
         junction depth), and what the finding reports (None when no row has such a profile).
     """
-    from scipy.special import erf, erfc
-
     kinds = np.asarray(device.profile, dtype=object)
     diffused = (kinds == "erfc") | (kinds == "gaussian")
     table = kinds == "table"
@@ -563,49 +561,19 @@ def _equivalent_abrupt(device, mat, env, problems):
     _rule(problems, diffused & _given(bg) & ~(cs > bg), "surface_concentration",
           "{cs:.4g} cm^-3 is not above the substrate doping {bg:.4g} cm^-3: the diffused p side makes no junction",
           {"cs": cs / 1e6, "bg": bg / 1e6})
-    rows = np.flatnonzero(table)
-    tabled = {i: _table_profile(device.profile_table[i]) for i in rows}
     n_thick = np.where(table, np.nan, device.n.thickness)
-    for i in rows:
+    tabled = {}
+    for i in np.flatnonzero(table).tolist():
+        tabled[i] = _table_profile(device.profile_table[i])
         xj[i] = tabled[i].junctions[0]
         n_thick[i] = tabled[i].length - xj[i]
-    gauss = kinds == "gaussian"
-    sqpi = np.sqrt(np.pi)
-
-    def integral(u):  # integral of the acceptor shape from 0 to u (in units of d)
-        return np.where(gauss, 0.5 * sqpi * erf(u), 1.0 / sqpi - (np.exp(-u * u) / sqpi - u * erfc(u)))
-
-    def at(x):  # |N| at depth x
-        out = np.abs(bg - cs * np.where(gauss, np.exp(-(x / ell) ** 2), erfc(x / ell)))
-        for i in rows:
-            out[i] = abs(float(tabled[i](x[i])))
-        return out
-
-    def mean(a, b):  # mean |N| over [a, b]
-        out = np.where(b > a, np.abs(bg - cs * ell * (integral(b / ell) - integral(a / ell)) / (b - a)), at(a))
-        for i in rows:
-            out[i] = _table_mean(tabled[i], a[i], b[i]) if b[i] > a[i] else out[i]
-        return out
-
-    with np.errstate(all="ignore"):
-        eps, t, ni = env["eps"], env["t"], env["ni"]
-        zero = np.zeros(len(device))
-        length = xj + np.where(_given(n_thick), n_thick, device.n.neutral_width)
-        p_side, n_side = mean(zero, xj), mean(xj, length)
-        light_p = p_side < n_side
-        heavy = np.where(light_p, n_side, p_side)
-        lo, hi = zero, np.where(light_p, xj, length - xj)
-        for _ in range(_EQUIVALENT_STEPS):
-            x = 0.5 * (lo + hi)
-            light = np.maximum(at(np.where(light_p, xj - x, xj + x)), 1.0)
-            x_heavy = np.minimum(x * light / heavy, np.where(light_p, length - xj, xj))
-            heavy = np.where(light_p, mean(xj + x_heavy, length), mean(zero, xj - x_heavy))
-            na, nd = np.where(light_p, light, heavy), np.where(light_p, heavy, light)
-            vj = junction.junction_potential(junction.builtin_voltage(na, nd, ni, t), False, t)
-            _, xp, xn = junction.depletion_width(vj, device.reference_bias, na, nd, np.nan, False, eps)
-            short = x < np.where(light_p, xp, xn)
-            lo, hi = np.where(short, x, lo), np.where(short, hi, x)
     mask = diffused | table
+    rows = np.flatnonzero(mask)  # the work is done on these rows only
+    na, nd = np.full(len(device), np.nan), np.full(len(device), np.nan)
+    na[rows], nd[rows] = _equivalent_dopings(
+        kinds[rows], bg[rows], cs[rows], ell[rows], xj[rows], n_thick[rows], device.n.neutral_width[rows],
+        [tabled.get(i) for i in rows.tolist()] if tabled else None, env["ni"][rows], env["t"][rows],
+        env["eps"][rows], device.reference_bias[rows])
     nan = np.full(len(device), np.nan)
 
     def side(s, doping, thickness, neutral_width):
@@ -617,6 +585,64 @@ def _equivalent_abrupt(device, mat, env, problems):
                   n=side(device.n, nd, n_thick, np.where(table, nan, device.n.neutral_width)),
                   junction_depth=np.where(mask, xj, device.junction_depth))
     return out, {"mask": mask}
+
+
+def _equivalent_dopings(kinds, bg, cs, ell, xj, n_thick, n_width, tables, ni, t, eps, bias):
+    """The equivalent abrupt junction's NA, ND [m^-3] of profile rows (see :func:`_equivalent_abrupt`).
+
+    ``kinds`` "erfc", "gaussian" or "table"; ``bg``, ``cs``, ``ell`` the substrate doping, surface
+    concentration and characteristic length of the diffused rows; ``xj`` the junction depth; ``n_thick``
+    the n side's thickness (NaN: ``n_width``, its neutral width, was given); ``tables`` each row's
+    tabulated Profile (None for the others, or None for all); ``ni``, ``t``, ``eps``, ``bias`` as in
+    :mod:`modelgen.physics.junction`.
+    """
+    from scipy.special import erf, erfc
+
+    gauss, plain = kinds == "gaussian", kinds == "erfc"
+    tabled = [(j, p) for j, p in enumerate(tables or ()) if p is not None]
+    sqpi = np.sqrt(np.pi)
+
+    def integral(u):  # integral of the acceptor shape from 0 to u (in units of d)
+        out = np.full(len(u), np.nan)
+        out[gauss] = 0.5 * sqpi * erf(u[gauss])
+        v = u[plain]
+        out[plain] = 1.0 / sqpi - (np.exp(-v * v) / sqpi - v * erfc(v))
+        return out
+
+    def at(x):  # |N| at depth x
+        u = x / ell
+        shape = np.full(len(x), np.nan)
+        shape[gauss] = np.exp(-u[gauss] ** 2)
+        shape[plain] = erfc(u[plain])
+        out = np.abs(bg - cs * shape)
+        for j, p in tabled:
+            out[j] = abs(float(p(x[j])))
+        return out
+
+    def mean(a, b):  # mean |N| over [a, b]
+        out = np.where(b > a, np.abs(bg - cs * ell * (integral(b / ell) - integral(a / ell)) / (b - a)), at(a))
+        for j, p in tabled:
+            out[j] = _table_mean(p, a[j], b[j]) if b[j] > a[j] else out[j]
+        return out
+
+    with np.errstate(all="ignore"):
+        zero = np.zeros(len(kinds))
+        length = xj + np.where(_given(n_thick), n_thick, n_width)
+        p_side, n_side = mean(zero, xj), mean(xj, length)
+        light_p = p_side < n_side
+        heavy = np.where(light_p, n_side, p_side)
+        lo, hi = zero, np.where(light_p, xj, length - xj)
+        for _ in range(_EQUIVALENT_STEPS):
+            x = 0.5 * (lo + hi)
+            light = np.maximum(at(np.where(light_p, xj - x, xj + x)), 1.0)
+            x_heavy = np.minimum(x * light / heavy, np.where(light_p, length - xj, xj))
+            heavy = mean(np.where(light_p, xj + x_heavy, zero), np.where(light_p, length, xj - x_heavy))
+            na, nd = np.where(light_p, light, heavy), np.where(light_p, heavy, light)
+            vj = junction.junction_potential(junction.builtin_voltage(na, nd, ni, t), False, t)
+            _, xp, xn = junction.depletion_width(vj, bias, na, nd, np.nan, False, eps)
+            short = x < np.where(light_p, xp, xn)
+            lo, hi = np.where(short, x, lo), np.where(short, hi, x)
+    return na, nd
 
 
 def _table_profile(table):
