@@ -406,9 +406,29 @@ def _model_ranges(device, mat, problems):
     lo, hi = mat.DOPING_RANGE
     for name in ("p", "n"):
         n = getattr(device, name).doping
-        _rule(problems, _given(n) & ~((n >= lo) & (n <= hi)), f"{name}.doping",
-              f"{{n:.3g}} cm^-3 is outside the {_cm3(lo)}-{_cm3(hi)} cm^-3 the {mat.NAME} models cover",
-              {"n": n / 1e6})
+        _side_rule(problems, device, _given(n) & ~((n >= lo) & (n <= hi)), name, "doping",
+                   f"{{n:.3g}} cm^-3 is outside the {_cm3(lo)}-{_cm3(hi)} cm^-3 the {mat.NAME} models cover",
+                   {"n": n / 1e6})
+
+
+#: The key that gives a side's doping or thickness where a diffused profile gives the p side.
+_DIFFUSED_P_KEY = {"doping": "surface_concentration", "thickness": "junction_depth"}
+
+
+def _side_rule(problems, device, mask, name, what, message, values=None):
+    """:func:`_rule` on side ``name``'s ``what`` (doping or thickness), naming the key the user gave for it.
+
+    Where a profile gives the side (a table: both sides; erfc or gaussian: the p side), the key is the
+    profile's (``profile_table``; ``surface_concentration`` or ``junction_depth``) and the message says it
+    is the equivalent abrupt junction's side.
+    """
+    kinds = np.asarray(device.profile, dtype=object)
+    table = kinds == "table"
+    diffused = ((kinds == "erfc") | (kinds == "gaussian")) if name == "p" else np.zeros(len(kinds), bool)
+    said = f"the {name} side of the equivalent abrupt junction: " + message
+    _rule(problems, mask & ~table & ~diffused, f"{name}.{what}", message, values)
+    _rule(problems, mask & table, "profile_table", said, values)
+    _rule(problems, mask & diffused, _DIFFUSED_P_KEY[what], said, values)
 
 
 def _side_material(device, side, name, mat, env, problems):
@@ -680,10 +700,10 @@ def _neutral_region(device, side, name, s, el, problems):
     x_ref = el["x_ref"][name]
     thick = np.where(_given(side.thickness), side.thickness, side.neutral_width + x_ref)
     width = np.where(_given(side.thickness), side.thickness - x_ref, side.neutral_width)
-    _rule(problems, ~(width > 0), f"{name}.thickness",
-          "this side is depleted through to its contact at the reference bias "
-          "(depletion extent {x:.4g} um, thickness {t:.4g} um): no neutral region is left",
-          {"x": x_ref * 1e6, "t": thick * 1e6})
+    _side_rule(problems, device, ~(width > 0), name, "thickness",
+               "this side is depleted through to its contact at the reference bias "
+               "(depletion extent {x:.4g} um, thickness {t:.4g} um): no neutral region is left",
+               {"x": x_ref * 1e6, "t": thick * 1e6})
     s.update(thickness=thick, neutral_width=width)
     with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
         w_l = width / s["diffusion_length"]

@@ -223,6 +223,15 @@ def test_table_profile_refuses_side_widths(tmp_path):
     refused(run("card", toml), str(toml), "junction_depth", "table gives the junction depth")
 
 
+def test_a_table_side_depleted_through_names_the_table(tmp_path):
+    # a 1e14 cm^-3 n side 5 um long at -50 V: an abrupt one-sided junction depletes about
+    # sqrt(2 eps V / (q N)) = 26 um (Sze & Ng 2007, sec. 2.2), beyond the n contact
+    toml = write_table(tmp_path, "depth [um],net_doping [cm^-3]\n0,-1e19\n0.01,-1e18\n0.02,1e14\n5,1e14\n")
+    toml.write_text(toml.read_text().replace('area = "100 um^2"', 'area = "100 um^2"\nreference_bias = "-50 V"'))
+    refused(run("card", toml), str(toml), "profile_table", "n side of the equivalent abrupt junction",
+            "depleted through")
+
+
 def test_lots_take_erfc_columns_and_refuse_tables(tmp_path):
     f = tmp_path / "lot.csv"
     f.write_text("name,area [um^2],profile,surface_concentration [cm^-3],junction_depth [um],"
