@@ -513,7 +513,7 @@ def read_profile_table(name, description_file=None):
         return InputError(message, file=path, row=line, key=key)
 
     records = []
-    for line, raw in enumerate(text.splitlines(), 1):
+    for line, raw in enumerate(text.replace("\r\n", "\n").replace("\r", "\n").split("\n"), 1):  # as editors count
         if raw.strip(" \t,") and not raw.lstrip().startswith("#"):
             try:
                 records.append((line, next(csv.reader([raw]))))

@@ -496,8 +496,13 @@ def diffused_junction(device, mat):
 
     Returns
     -------
-    (background, length, depth) : numpy.ndarray
+    (background, characteristic_length, junction_depth) : numpy.ndarray
         N_B [m^-3], d [m] and xj [m]; NaN on other rows and where Cs <= N_B.
+
+    Notes
+    -----
+    Valid where the diffused acceptors and the substrate donors are the
+    only dopants (no compensation beyond N_B).
 
     References
     ----------
@@ -615,6 +620,14 @@ def _equivalent_dopings(kinds, bg, cs, ell, xj, n_thick, n_width, tables, ni, t,
     the n side's thickness (NaN: ``n_width``, its neutral width, was given); ``tables`` each row's
     tabulated Profile (None for the others, or None for all); ``ni``, ``t``, ``eps``, ``bias`` as in
     :mod:`modelgen.physics.junction`.
+
+    Notes
+    -----
+    The equivalent junction is modelgen's own construction, made so the closed forms can give every card
+    parameter; the solver takes the true profile. Its depletion extents are the abrupt junction's
+    (Sze & Ng, *Physics of Semiconductor Devices*, 3rd ed., 2007, sec. 2.2). The erfc integral is
+    int_0^u erfc = 1/sqrt(pi) - ierfc(u), ierfc(u) = exp(-u^2)/sqrt(pi) - u erfc(u) (Abramowitz & Stegun,
+    *Handbook of Mathematical Functions*, 1964, 7.2.1 and 7.2.3, from memory).
     """
     from scipy.special import erf, erfc
 
