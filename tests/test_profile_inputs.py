@@ -322,3 +322,20 @@ def test_closed_form_holds_only_for_abrupt_and_linear():
     s = structures.structure_for(r, 0)
     assert s.profile.junctions == (pytest.approx(1 * UM),)
     assert s.profile(np.array([0.5 * UM, 2 * UM])).tolist() == [-1e19 * CM3, pytest.approx(1e16 * CM3)]
+
+
+def test_profile_rows_give_the_same_numbers_alone_and_in_a_table():
+    # one code path for one device and a table (the project's rule): each row's equivalent junction
+    # depends on that row alone, also mixed with abrupt rows and a tabulated profile
+    abrupt = ERFC.replace('profile = "erfc"\n', "").replace('surface_concentration = "1e20 cm^-3"\n', "").replace(
+        "[p]\n", '[p]\ndoping = "1e19 cm^-3"\nthickness = "1 um"\n').replace('junction_depth = "0.5 um"\n', "")
+    texts = [ERFC, abrupt, ERFC.replace('"erfc"', '"gaussian"').replace('"0.5 um"', '"0.9 um"'),
+             ERFC.replace('"1e20 cm^-3"', '"3e19 cm^-3"').replace('area = "100 um^2"', 'area = "100 um^2"\n'
+                                                                     'reference_bias = "-2 V"')]
+    devices = [description.from_mapping(description.parse_toml(t, "x")) for t in texts]
+    devices.append(description.load(TABLE))
+    together = extraction.derive(concatenate(devices))
+    for i, d in enumerate(devices):
+        alone = extraction.derive(d)
+        for k in extraction.PARAMETERS:
+            assert np.array_equal(alone.params[k], together.params[k][i:i + 1], equal_nan=True), (i, k)
