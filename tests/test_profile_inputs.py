@@ -203,6 +203,10 @@ BAD_DESCRIPTIONS = {
     "surface below substrate": (ERFC.replace('"1e20 cm^-3"', '"5e15 cm^-3"'), "surface_concentration",
                                 "makes no junction"),
     "table without file": (TABLE_TOML.replace('profile_table = "{csv}"\n', ""), "profile_table", "needs"),
+    "fit forward bias": (ERFC + '[fit]\nreverse_bias = "2 V"\n', "fit.reverse_bias", "not a reverse bias"),
+    "fit range reversed": (ERFC + '[fit]\ncapacitance_low = "0 V"\ncapacitance_high = "-3 V"\n',
+                           "fit.capacitance_high", "must go from low to high"),
+    "fit current unit": (ERFC + '[fit]\ncurrent_low = "1 V"\n', "fit.current_low", "current"),
 }
 
 
