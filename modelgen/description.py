@@ -16,13 +16,21 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import materials
-from .device import Device, Side
+from .device import Device, ProfileTable, Side
 from .errors import InputError, Problems, shown, type_name
 from .textio import read_text
-from .units import KINDS, MAX_QUANTITY, parse_quantity
+from .units import KINDS, MAX_QUANTITY, apply_factor, parse_quantity, unit_factor
 
 #: Largest description file read (a description is about 1 KB).
 DESCRIPTION_LIMIT = 2**20
+#: Largest profile table read (a process simulator's export of 100,000 points is about 3 MB).
+PROFILE_LIMIT = 16 * 2**20
+#: Fewest and most points of a profile table.
+PROFILE_POINTS = (3, 200000)
+#: The junction profiles a description may name; :data:`modelgen.device.CLOSED_FORM_PROFILES` the closed forms take.
+PROFILES = ("abrupt", "linear", "erfc", "gaussian", "table")
+#: The columns of a profile table: key -> units kind.
+PROFILE_COLUMNS = {"depth": "length", "net_doping": "concentration"}
 
 
 @dataclass(frozen=True)
@@ -122,7 +130,16 @@ KEYS = {
     "contact_resistance": Key("resistance", "added to RS", default=0.0, at_least=0.0,
                               **_range(0.0, 1e9, "0 to 1 Gohm", "beyond it the device is "
                                        "an open circuit, not a diode")),
-    "profile": Key("choice", "junction profile", default="abrupt", choices=("abrupt", "linear")),
+    "profile": Key("choice", "junction profile", default="abrupt", choices=PROFILES),
+    "surface_concentration": Key("concentration", "surface acceptor density of the diffused p side "
+                                 "(profile erfc or gaussian)", minimum=0.0,
+                                 **_range(1e18, 1e28, "1e12 to 1e22 cm^-3", "as doping: beyond the solid "
+                                          "solubility of any dopant above")),
+    "characteristic_length": Key("length", "characteristic length 2 sqrt(D t) of the diffused p side "
+                                 "(profile erfc or gaussian; or give junction_depth)", minimum=0.0,
+                                 **_range(1e-9, 1e-3, "1 nm to 1 mm", "as junction_depth")),
+    "profile_table": Key("text", "CSV file of the net doping, columns depth and net_doping with units "
+                         "(profile table), relative to the description"),
     "grading": Key("grading", "impurity gradient of a linear profile", minimum=0.0,
                    **_range(1e20, 1e38, "1e12 to 1e30 cm^-4", "from a 1e12 cm^-3 change over 1 cm "
                             "to 1e22 cm^-3 over 1 nm")),
@@ -142,7 +159,20 @@ for _side in ("p", "n"):
     for _k, _v in _SIDE_KEYS.items():
         KEYS[f"{_side}.{_k}"] = _v
 
-_TABLES = {"material", "card", "p", "n"}
+_FIT_CURRENT = _range(1e-15, 1e3, "1 fA to 1 kA", "beyond the currents a diode model is used at", minimum=0.0)
+_FIT_BIAS = _range(-1e5, 10.0, "-100 kV to 10 V", "as reference_bias")
+#: The optional [fit] table: the window a card is fitted in when the numerical solver makes it.
+FIT_KEYS = {
+    "fit.current_low": Key("current", "lowest forward current of the I-V fit", **_FIT_CURRENT),
+    "fit.current_high": Key("current", "highest forward current of the I-V fit", **_FIT_CURRENT),
+    "fit.reverse_bias": Key("voltage", "reverse bias of the fit (negative: a value at or above 0 V is refused "
+                            "first)", **_FIT_BIAS),
+    "fit.capacitance_low": Key("voltage", "lowest bias of the C-V fit", **_FIT_BIAS),
+    "fit.capacitance_high": Key("voltage", "highest bias of the C-V fit", **_FIT_BIAS),
+}
+KEYS.update(FIT_KEYS)
+
+_TABLES = {"material", "card", "p", "n", "fit"}
 _REQUIRED = ("name", "area")
 #: Pairs of keys of which exactly one (first pair) or at most one (second) is given.
 _EXACTLY_ONE = (("doping", "resistivity"), ("thickness", "neutral_width"))
@@ -335,21 +365,25 @@ def assemble(columns, *, sources=None, rows=None, problems=None):
     if unknown.any():
         fail(unknown, "material", "unknown material {m}; known: " + ", ".join(known),
              {"m": np.array([shown(m) for m in mats], dtype=object)})
-    profile = np.asarray(columns.get("profile", ("abrupt",) * n))
+    profile = np.asarray(columns.get("profile", ("abrupt",) * n), dtype=object)
     linear = profile == "linear"
 
     num = {k: _column(columns, k, n) for k, spec in KEYS.items() if spec.kind not in ("text", "choice")}
+    rev = num["fit.reverse_bias"]
+    fail(~np.isnan(rev) & ~(rev < 0), "fit.reverse_bias", "{v:.4g} V is not a reverse bias: it must be below 0 V",
+         {"v": rev})
     for key in KEYS:
         if key in num and key in columns:
             check_range(key, num[key], fail)
     for key in _REQUIRED:
         if key in num:
             fail(np.isnan(num[key]), key, "required key is missing")
-    for side in ("p", "n"):
+    table, diffused, closed = _profile_rules(columns, profile, num, n, fail)
+    for side, own in (("p", closed), ("n", ~table)):  # where the profile does not give the side's doping
         for a, b in _EXACTLY_ONE:
             ga, gb = ~np.isnan(num[f"{side}.{a}"]), ~np.isnan(num[f"{side}.{b}"])
-            fail(ga & gb, f"{side}.{a}", f"give {a} or {b}, not both")
-            fail(~ga & ~gb, f"{side}.{a}", f"required: give {a} or {b}")
+            fail(own & ga & gb, f"{side}.{a}", f"give {a} or {b}, not both")
+            fail(own & ~ga & ~gb, f"{side}.{a}", f"required: give {a} or {b}")
         for a, b in _AT_MOST_ONE:
             fail(~np.isnan(num[f"{side}.{a}"]) & ~np.isnan(num[f"{side}.{b}"]), f"{side}.{a}",
                  f"give {a} or {b}, not both")
@@ -357,10 +391,16 @@ def assemble(columns, *, sources=None, rows=None, problems=None):
     fail(linear & np.isnan(grading), "grading", "a linear profile needs grading (e.g. \"1e20 cm^-4\")")
     fail(~linear & ~np.isnan(grading), "grading", "grading applies only to profile = \"linear\"")
     per, xj = num["perimeter"], num["junction_depth"]
-    fail(np.isnan(per) & ~np.isnan(xj), "junction_depth",
+    fail(closed & np.isnan(per) & ~np.isnan(xj), "junction_depth",
          "perimeter and junction_depth go together (the sidewall area is perimeter x junction_depth)")
-    fail(~np.isnan(per) & np.isnan(xj), "perimeter",
+    fail(closed & ~np.isnan(per) & np.isnan(xj), "perimeter",
          "perimeter and junction_depth go together (the sidewall area is perimeter x junction_depth)")
+    for low, high, unit in (("fit.current_low", "fit.current_high", "A"),
+                            ("fit.capacitance_low", "fit.capacitance_high", "V")):
+        lo, hi = num[low], num[high]
+        fail(~np.isnan(lo) & ~np.isnan(hi) & ~(lo < hi), high,
+             "{hi:.4g} " + unit + " is not above " + low + " = {lo:.4g} " + unit + ": the range must go from low "
+             "to high", {"lo": lo, "hi": hi})
     eps_r = num["material.relative_permittivity"]
     eps_default = np.array([materials.MATERIALS.get(m, materials.silicon).RELATIVE_PERMITTIVITY for m in mats])
 
@@ -372,7 +412,12 @@ def assemble(columns, *, sources=None, rows=None, problems=None):
         temperature=num["temperature"], area=num["area"],
         perimeter=np.nan_to_num(per, nan=0.0), junction_depth=np.nan_to_num(xj, nan=0.0),
         reference_bias=num["reference_bias"], contact_resistance=num["contact_resistance"],
-        linear=linear, grading=grading,
+        linear=linear, grading=grading, profile=profile,
+        surface_concentration=num["surface_concentration"], characteristic_length=num["characteristic_length"],
+        profile_table=table_column(columns, n),
+        fit_current_low=num["fit.current_low"], fit_current_high=num["fit.current_high"],
+        fit_reverse_bias=num["fit.reverse_bias"], fit_capacitance_low=num["fit.capacitance_low"],
+        fit_capacitance_high=num["fit.capacitance_high"],
         relative_permittivity=np.where(np.isnan(eps_r), eps_default, eps_r),
         ni=num["material.ni"], bandgap=num["material.bandgap"],
         fc=num["card.fc"], breakdown_current=num["card.breakdown_current"],
@@ -382,6 +427,176 @@ def assemble(columns, *, sources=None, rows=None, problems=None):
         p=side("p"), n=side("n"), source=sources,
         line=tuple(rows) if rows is not None else (),
     )
+
+
+def table_column(columns, n):
+    """The ``profile_table`` column as an object array: a :class:`ProfileTable` where read, else None."""
+    out = np.full(n, None, dtype=object)
+    for i, v in enumerate(columns.get("profile_table", ())):
+        if isinstance(v, ProfileTable):
+            out[i] = v
+    return out
+
+
+def _profile_rules(columns, profile, num, n, fail):
+    """The rules of the profile keys; returns the masks (table, diffused, closed form) of the rows."""
+    table = profile == "table"
+    diffused = (profile == "erfc") | (profile == "gaussian")
+    closed = ~table & ~diffused
+    cells = np.asarray(columns.get("profile_table", (None,) * n), dtype=object)
+    named = np.array([v is not None and v != "" and not (isinstance(v, float) and math.isnan(v)) for v in cells],
+                     bool)
+    read = np.array([isinstance(v, ProfileTable) for v in cells], bool)
+    kind = {"kind": profile}
+    fail(table & ~named, "profile_table", "profile = \"table\" needs profile_table = \"FILE.csv\" (columns "
+         "depth [um] and net_doping [cm^-3], depth from the p-side contact)")
+    fail(~table & named, "profile_table", "profile_table applies only to profile = \"table\"")
+    fail(table & named & ~read, "profile_table", "a profile table is read only from a device description "
+         "(a TOML file), not from a lot table: lots take abrupt, linear, erfc and gaussian profiles")
+    cs, ell, xj = num["surface_concentration"], num["characteristic_length"], num["junction_depth"]
+    fail(diffused & np.isnan(cs), "surface_concentration", "profile = \"{kind}\" needs surface_concentration, "
+         "the diffused p side's surface acceptor density (e.g. \"1e20 cm^-3\")", kind)
+    fail(~diffused & ~np.isnan(cs), "surface_concentration",
+         "applies only to profile = \"erfc\" or \"gaussian\"")
+    fail(~diffused & ~np.isnan(ell), "characteristic_length",
+         "applies only to profile = \"erfc\" or \"gaussian\"")
+    fail(diffused & ~np.isnan(ell) & ~np.isnan(xj), "characteristic_length",
+         "give characteristic_length or junction_depth, not both")
+    fail(diffused & np.isnan(ell) & np.isnan(xj), "junction_depth", "profile = \"{kind}\" needs junction_depth "
+         "(where its net doping changes sign, e.g. \"0.5 um\") or characteristic_length", kind)
+    fail(table & ~np.isnan(xj), "junction_depth", "the profile table gives the junction depth: leave "
+         "junction_depth out")
+    for side, given_by in (("p", table | diffused), ("n", table)):
+        for k in ("doping", "resistivity", "thickness", "neutral_width"):
+            fail(given_by & ~np.isnan(num[f"{side}.{k}"]), f"{side}.{k}", "the {kind} profile gives this "
+                 "side's doping and thickness: leave " + f"{side}.{k} out", kind)
+    return table, diffused, closed
+
+
+def read_profile_table(name, description_file=None):
+    """Read the profile table ``name`` (a path relative to the description file's folder).
+
+    The file is CSV (UTF-8, at most :data:`PROFILE_LIMIT` bytes; blank lines
+    and lines starting with ``#`` are skipped). Its header names the columns
+    ``depth [unit]`` (from the p-side contact) and ``net_doping [unit]``
+    (N_D - N_A); other columns are ignored. The depths start at 0 and
+    increase strictly; the net doping is negative (p) at the first depth,
+    positive (n) at the last and changes sign once; there are
+    :data:`PROFILE_POINTS` points at least and at most.
+
+    Returns
+    -------
+    ProfileTable
+        In SI units (m, m^-3).
+
+    Raises
+    ------
+    InputError
+        The file missing or unreadable (naming the description and
+        ``profile_table``), or a rule broken (naming the table's file, line
+        and column).
+    """
+    import csv
+    import os
+
+    if not isinstance(name, str) or not name:
+        raise InputError("expected a file name", file=description_file, key="profile_table")
+    folder = os.path.dirname(str(description_file)) if description_file else ""
+    path = os.path.join(folder, name)
+    try:
+        text = read_text(path, "profile table", limit=PROFILE_LIMIT)
+    except InputError as e:
+        raise InputError(f"{shown(name)}: {e.message}" + ("" if path == name else f" ({path})"),
+                         file=description_file, key="profile_table") from None
+
+    def bad(message, line=None, key=None):
+        return InputError(message, file=path, row=line, key=key)
+
+    records = []
+    for line, raw in enumerate(text.replace("\r\n", "\n").replace("\r", "\n").split("\n"), 1):  # as editors count
+        if raw.strip(" \t,") and not raw.lstrip().startswith("#"):
+            try:
+                records.append((line, next(csv.reader([raw]))))
+            except csv.Error as e:
+                raise bad(f"not valid CSV: {e}", line) from None
+    if not records:
+        raise bad("empty profile table: it needs a header (depth [um], net_doping [cm^-3]) and points")
+    head_line, header = records[0]
+    where = {}
+    for j, cell in enumerate(header):
+        m = _HEADER.fullmatch(cell)
+        key = m.group(1) if m else cell.strip()
+        if key in PROFILE_COLUMNS:
+            if key in where:
+                raise bad("column given twice", head_line, key)
+            if not m or not m.group(2):
+                raise bad(f"give the unit in brackets, e.g. \"{key} [{_EXAMPLE_UNIT[key]}]\"", head_line, key)
+            where[key] = (j, m.group(2))
+    for key in PROFILE_COLUMNS:
+        if key not in where:
+            raise bad(f"no {key} column: the header must name depth [um] (from the p-side contact) and "
+                      f"net_doping [cm^-3] (donors minus acceptors), got {shown(','.join(header))}", head_line, key)
+    body = records[1:]
+    low, high = PROFILE_POINTS
+    if not low <= len(body) <= high:
+        raise bad(f"{len(body)} points: a profile table needs {low} to {high}")
+    lines = np.array([ln for ln, _ in body])
+    values = {}
+    for key, (j, unit) in where.items():
+        try:
+            scale, offset = unit_factor(unit, PROFILE_COLUMNS[key])
+        except ValueError as e:
+            raise bad(f"column unit: {e}", head_line, key) from None
+        column = np.empty(len(body))
+        for i, (line, cells) in enumerate(body):
+            cell = cells[j].strip() if j < len(cells) else ""
+            try:
+                column[i] = float(cell)
+            except ValueError:
+                raise bad(f"not a number: {shown(cell)}" if cell else "empty cell: a number is required",
+                          line, key) from None
+            if not math.isfinite(column[i]):
+                raise bad(f"not a finite number: {shown(cell)}", line, key)
+        values[key] = apply_factor(column, scale, offset)
+    x, c = values["depth"], values["net_doping"]
+    if x[0] != 0:
+        raise bad("the first depth must be 0 (the p-side contact)", lines[0], "depth")
+    step = np.flatnonzero(~(np.diff(x) > 0))
+    if len(step):
+        raise bad("depth does not increase from the line before: depths must increase strictly",
+                  lines[step[0] + 1], "depth")
+    if x[-1] > 1e-2:
+        raise bad(f"{x[-1] * 1e6:.4g} um is deeper than 1 cm, more than any wafer", lines[-1], "depth")
+    big = np.flatnonzero(np.abs(c) > 1e28)
+    if len(big):
+        raise bad(f"{c[big[0]] / 1e6:.4g} cm^-3 is beyond 1e22 cm^-3, the solid solubility of any dopant",
+                  lines[big[0]], "net_doping")
+    sign = np.sign(c)
+    nonzero = np.flatnonzero(sign != 0)
+    if not len(nonzero) or np.all(sign[nonzero] == sign[nonzero[0]]):
+        raise bad("the net doping never changes sign: there is no junction (it must be negative, p type, at "
+                  "depth 0 and positive, n type, at the last depth)", lines[0], "net_doping")
+    if not c[0] < 0:
+        raise bad("the net doping must be negative (p type) at depth 0, the p-side contact", lines[0], "net_doping")
+    if not c[-1] > 0:
+        raise bad("the net doping must be positive (n type) at the last depth, the n-side contact", lines[-1],
+                  "net_doping")
+    changes = nonzero[1:][np.diff(sign[nonzero]) != 0]
+    if len(changes) > 1:
+        raise bad("the net doping changes sign a second time here: a diode's profile has one junction",
+                  lines[changes[1]], "net_doping")
+    return ProfileTable(depth=x, net_doping=c, file=path)
+
+
+_HEADER = re.compile(r"\s*([^\[\]]*?)\s*(?:\[\s*([^\[\]]*?)\s*\])?\s*")
+_EXAMPLE_UNIT = {"depth": "um", "net_doping": "cm^-3"}
+
+
+def _read_tables(flat, file):
+    """``flat`` with a table profile's file name replaced by the table read (relative to ``file``)."""
+    if flat.get("profile") == "table" and isinstance(flat.get("profile_table"), str):
+        flat = dict(flat, profile_table=read_profile_table(flat["profile_table"], file))
+    return flat
 
 
 def read_mapping(table, *, file=None, errors=None):
@@ -396,7 +611,7 @@ def read_mapping(table, *, file=None, errors=None):
 
 def from_mapping(table, *, file=None):
     """A :class:`Device` of length 1 from a description given as a dict."""
-    flat = read_mapping(table, file=file)
+    flat = _read_tables(read_mapping(table, file=file), file)
     return assemble({k: [v] for k, v in flat.items()}, sources=[file])
 
 
@@ -428,7 +643,7 @@ def load_with_inputs(path):
     path = str(path)
     table = _read_toml(path)
     raw = _flatten(table, path)
-    device = assemble({k: [v] for k, v in convert(raw, file=path).items()}, sources=[path])
+    device = assemble({k: [v] for k, v in _read_tables(convert(raw, file=path), path).items()}, sources=[path])
     return device, raw
 
 

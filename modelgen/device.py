@@ -12,6 +12,28 @@ from operator import itemgetter
 
 import numpy as np
 
+#: Profiles the closed forms take as they are; the others (erfc, gaussian, table) they approximate.
+CLOSED_FORM_PROFILES = ("abrupt", "linear")
+
+
+@dataclass(frozen=True, eq=False)
+class ProfileTable:
+    """A tabulated net doping profile read from a file (``profile = "table"``).
+
+    Attributes
+    ----------
+    depth : numpy.ndarray
+        Depth from the p-side contact [m], strictly increasing from 0.
+    net_doping : numpy.ndarray
+        N_D - N_A at each depth [m^-3]: negative (p) first, positive (n) last, one sign change.
+    file : str
+        The file it was read from, for messages and card headers.
+    """
+
+    depth: np.ndarray
+    net_doping: np.ndarray
+    file: str
+
 
 @dataclass
 class Side:
@@ -59,6 +81,15 @@ class Device:
     contact_resistance : added to RS [ohm].
     linear : True for a linearly graded junction.
     grading : impurity gradient [m^-4] (NaN for abrupt).
+    profile : the junction profile of each device: "abrupt", "linear", "erfc", "gaussian" or "table".
+    surface_concentration : surface acceptor density of a diffused p side (erfc, gaussian) [m^-3] (NaN = none).
+    characteristic_length : characteristic length 2 sqrt(D t) of a diffused p side [m] (NaN = from
+        junction_depth, or none).
+    profile_table : a :class:`ProfileTable` for "table" rows, None elsewhere (object array).
+    fit_current_low, fit_current_high : forward-current range for fitting the card to the solver [A]
+        (NaN = not given).
+    fit_reverse_bias : reverse bias for the fit [V], negative (NaN = not given).
+    fit_capacitance_low, fit_capacitance_high : bias range for the C-V fit [V] (NaN = not given).
     relative_permittivity : [-].
     ni : intrinsic density override at the nominal temperature [m^-3] (NaN = model).
     bandgap : band-gap override at the nominal temperature [eV] (NaN = model).
@@ -80,6 +111,15 @@ class Device:
     contact_resistance: np.ndarray
     linear: np.ndarray
     grading: np.ndarray
+    profile: np.ndarray
+    surface_concentration: np.ndarray
+    characteristic_length: np.ndarray
+    profile_table: np.ndarray
+    fit_current_low: np.ndarray
+    fit_current_high: np.ndarray
+    fit_reverse_bias: np.ndarray
+    fit_capacitance_low: np.ndarray
+    fit_capacitance_high: np.ndarray
     relative_permittivity: np.ndarray
     ni: np.ndarray
     bandgap: np.ndarray

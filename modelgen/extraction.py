@@ -9,7 +9,7 @@ quantities an engineer checks, and the warnings. It raises
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import NamedTuple
 
 import numpy as np
@@ -18,7 +18,7 @@ from . import materials
 from .constants import EPS0, Q, thermal_voltage
 from .device import Device
 from .errors import InputError, Problems
-from .physics import breakdown, diffusion, injection, junction, recombination, resistance
+from .physics import breakdown, diffusion, injection, junction, profiles, recombination, resistance
 
 #: Order of the card parameters.
 PARAMETERS = ("IS", "N", "RS", "CJO", "VJ", "M", "FC", "TT", "BV", "IBV", "EG", "XTI",
@@ -54,6 +54,7 @@ KINDS = {
     "tunnelling": "BV in the tunnelling range",
     "graded_reach_through": "graded depletion wider than a side at breakdown (BV an upper estimate)",
     "breakdown_estimate": "breakdown is an estimate",
+    "profile": "diffused or tabulated profile (closed forms approximate it)",
 }
 
 
@@ -343,6 +344,8 @@ def _stages(device, mat, problems):
     W/L, J0, transit time, resistance); 5 currents (IS, TT, ISR, IKF, RS); 6 capacitance; 7 breakdown;
     8 findings; 9 guard on the card parameters.
     """
+    given = device
+    device, profile = _equivalent_abrupt(device, mat, _conditions(device, mat), problems)
     env = _conditions(device, mat)
     _model_ranges(device, mat, problems)
     sides = {"p": _side_material(device, device.p, "p", mat, env, problems),
@@ -353,7 +356,7 @@ def _stages(device, mat, problems):
     cur = _currents(device, sides, env, el)
     cap = _capacitance(env, el)
     bd = _breakdown(mat, sides, env, el)
-    findings = _findings(device, mat, sides, env, el, bd)
+    findings = _findings(device, mat, sides, env, el, bd, profile)
     ones = np.ones(len(device))
     p, n = sides["p"], sides["n"]
     params = {
@@ -373,7 +376,7 @@ def _stages(device, mat, problems):
     derived["p"]["depletion_extent"] = el["xp0"]
     derived["n"]["depletion_extent"] = el["xn0"]
     _guard(device, params, problems)
-    return Result(device=device, params=params, derived=derived, findings=findings, sources=dict(mat.SOURCES))
+    return Result(device=given, params=params, derived=derived, findings=findings, sources=dict(mat.SOURCES))
 
 
 def _rule(problems, mask, key, message, values=None):
@@ -403,9 +406,29 @@ def _model_ranges(device, mat, problems):
     lo, hi = mat.DOPING_RANGE
     for name in ("p", "n"):
         n = getattr(device, name).doping
-        _rule(problems, _given(n) & ~((n >= lo) & (n <= hi)), f"{name}.doping",
-              f"{{n:.3g}} cm^-3 is outside the {_cm3(lo)}-{_cm3(hi)} cm^-3 the {mat.NAME} models cover",
-              {"n": n / 1e6})
+        _side_rule(problems, device, _given(n) & ~((n >= lo) & (n <= hi)), name, "doping",
+                   f"{{n:.3g}} cm^-3 is outside the {_cm3(lo)}-{_cm3(hi)} cm^-3 the {mat.NAME} models cover",
+                   {"n": n / 1e6})
+
+
+#: The key that gives a side's doping or thickness where a diffused profile gives the p side.
+_DIFFUSED_P_KEY = {"doping": "surface_concentration", "thickness": "junction_depth"}
+
+
+def _side_rule(problems, device, mask, name, what, message, values=None):
+    """:func:`_rule` on side ``name``'s ``what`` (doping or thickness), naming the key the user gave for it.
+
+    Where a profile gives the side (a table: both sides; erfc or gaussian: the p side), the key is the
+    profile's (``profile_table``; ``surface_concentration`` or ``junction_depth``) and the message says it
+    is the equivalent abrupt junction's side.
+    """
+    kinds = np.asarray(device.profile, dtype=object)
+    table = kinds == "table"
+    diffused = ((kinds == "erfc") | (kinds == "gaussian")) if name == "p" else np.zeros(len(kinds), bool)
+    said = f"the {name} side of the equivalent abrupt junction: " + message
+    _rule(problems, mask & ~table & ~diffused, f"{name}.{what}", message, values)
+    _rule(problems, mask & table, "profile_table", said, values)
+    _rule(problems, mask & diffused, _DIFFUSED_P_KEY[what], said, values)
 
 
 def _side_material(device, side, name, mat, env, problems):
@@ -414,13 +437,7 @@ def _side_material(device, side, name, mat, env, problems):
     t, t_ref, vt = env["t"], env["t_ref"], env["vt"]
     mu_override = side.majority_mobility
     from_rho = np.isnan(side.doping)
-    n_rho = np.full(len(device), np.nan)
-    modelled = np.flatnonzero(from_rho & ~_given(mu_override))  # invert the mobility model only there
-    if len(modelled):
-        n_rho[modelled] = mat.doping_from_resistivity(side.resistivity[modelled], majority, t_ref[modelled])
-    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        n_rho = np.where(_given(mu_override), 1.0 / (Q * side.resistivity * mu_override), n_rho)
-    doping = np.where(from_rho, n_rho, side.doping)
+    doping = _side_doping(side, name, mat, t_ref)
     lo, hi = mat.DOPING_RANGE
     problems.add(from_rho & ~np.isfinite(doping), f"{name}.resistivity",
                  f"outside the range of the mobility model (doping {_cm3(lo)}-{_cm3(hi)} cm^-3)")
@@ -441,6 +458,229 @@ def _side_material(device, side, name, mat, env, problems):
                     bandgap_narrowing=dbgn, ni_eff=env["ni"] * np.exp(dbgn / (2 * vt)),
                     contact_velocity=side.surface_recombination,
                     lifetime_modelled=np.isnan(side.lifetime) & np.isnan(side.diffusion_length))
+
+
+def _side_doping(side, name, mat, t_ref):
+    """A side's dopant density [m^-3]: as given, or from its resistivity (through the majority mobility given,
+    else the material's mobility model at the reference temperature); NaN where the model cannot invert it."""
+    majority = "hole" if name == "p" else "electron"
+    mu_override = side.majority_mobility
+    from_rho = np.isnan(side.doping)
+    n_rho = np.full(len(side.doping), np.nan)
+    modelled = np.flatnonzero(from_rho & ~_given(mu_override))  # invert the mobility model only there
+    if len(modelled):
+        n_rho[modelled] = mat.doping_from_resistivity(side.resistivity[modelled], majority, t_ref[modelled])
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        n_rho = np.where(_given(mu_override), 1.0 / (Q * side.resistivity * mu_override), n_rho)
+    return np.where(from_rho, n_rho, side.doping)
+
+
+#: Bisection steps that place the light side's depletion edge of the equivalent abrupt junction on a profile.
+_EQUIVALENT_STEPS = 48
+
+
+def diffused_junction(device, mat):
+    """The diffused p side of erfc and gaussian rows: substrate doping, characteristic length, junction depth.
+
+    The acceptors fall from the surface concentration Cs as Cs erfc(x/d)
+    (constant-source diffusion) or Cs exp(-(x/d)^2) (limited source, Cs the
+    surface value); the junction lies where they equal the substrate's
+    donors, N_B: xj = d erfc^-1(N_B/Cs) or d sqrt(ln(Cs/N_B)). Given ``xj``
+    (``junction_depth``), d follows from it; given d, xj.
+
+    Parameters
+    ----------
+    device : Device
+    mat : module
+        The devices' material.
+
+    Returns
+    -------
+    (background, characteristic_length, junction_depth) : numpy.ndarray
+        N_B [m^-3], d [m] and xj [m]; NaN on other rows and where Cs <= N_B.
+
+    Notes
+    -----
+    Valid where the diffused acceptors and the substrate donors are the
+    only dopants (no compensation beyond N_B).
+
+    References
+    ----------
+    Plummer, Deal & Griffin, *Silicon VLSI Technology* (2000), ch. 7;
+    Sze & Ng, *Physics of Semiconductor Devices* (2007), ch. 2.
+    """
+    from scipy.special import erfcinv
+
+    erfc_row = device.profile == "erfc"
+    gauss = device.profile == "gaussian"
+    bg = np.where(erfc_row | gauss, _side_doping(device.n, "n", mat, device.reference_temperature), np.nan)
+    with np.errstate(all="ignore"):
+        ratio = np.where(bg < device.surface_concentration, bg / device.surface_concentration, np.nan)
+        u = np.where(erfc_row, erfcinv(ratio), np.sqrt(-np.log(ratio)))
+        ell = np.where(_given(device.characteristic_length), device.characteristic_length, device.junction_depth / u)
+        xj = np.where(_given(device.characteristic_length), device.characteristic_length * u, device.junction_depth)
+    ok = erfc_row | gauss
+    return np.where(ok, bg, np.nan), np.where(ok, ell, np.nan), np.where(ok, xj, np.nan)
+
+
+def profile_of(device, i, mat=None, length=None):
+    """The net doping profile of row ``i`` of an erfc, gaussian or table device (abrupt and linear: None).
+
+    A table's length is its last depth. An erfc or gaussian device runs from
+    the p contact to the n contact: ``length`` [m] when given (the junction
+    depth plus the n side's thickness as derived), else the junction depth
+    plus ``[n] thickness``.
+
+    Returns
+    -------
+    modelgen.physics.profiles.Profile or None
+    """
+    kind = device.profile[i]
+    if kind == "table":
+        return _table_profile(device.profile_table[i])
+    if kind not in ("erfc", "gaussian"):
+        return None
+    one = device.row(i)
+    bg, ell, xj = (float(v[0]) for v in diffused_junction(one, mat or materials.get(one.material[0])))
+    length = xj + float(one.n.thickness[0]) if length is None else float(length)
+    cs = float(one.surface_concentration[0])
+    if kind == "erfc":
+        return profiles.erfc_emitter(cs, ell, bg, length)
+    return profiles.gaussian_emitter(cs * np.sqrt(np.pi) * ell, ell, bg, length)  # peak Q/(sqrt(pi) d) = Cs
+
+
+def _table_mean(profile, a, b):
+    """Mean |N_D - N_A| [m^-3] of a tabulated ``profile`` over depths a < b [m] (trapezoids on a fine grid)."""
+    x = np.linspace(a, b, 2001)
+    y = np.abs(profile(x))
+    return float(np.sum(0.5 * (y[1:] + y[:-1]) * np.diff(x)) / (b - a))
+
+
+def _equivalent_abrupt(device, mat, env, problems):
+    """Stage 0: for erfc, gaussian and table rows, the abrupt junction the closed forms take instead.
+
+    Each side of the equivalent junction reaches from the metallurgical junction to its contact. The
+    lighter side (by the mean net doping over the whole side) takes the profile's |N_D - N_A| at its
+    depletion edge, the heavier side the mean over its neutral region, the edges being those of the
+    equivalent junction itself at the reference bias: the light side's extent x is the root of
+    x = x_abrupt(N(x)), increasing in x for a profile that rises away from the junction, found by
+    bisection in :data:`_EQUIVALENT_STEPS` steps. The diffused forms use closed-form integrals (of erfc,
+    i erfc; of the Gaussian, erf), so whole lots run as arrays; a table row is integrated numerically, one
+    at a time (tables come only from descriptions). An erfc or gaussian device given an n neutral width
+    instead of a thickness takes its n side, for these means, as that wide (its depletion edge lies in
+    the uniform substrate).
+
+    Returns
+    -------
+    (Device, dict or None)
+        The devices with those rows' dopings and thicknesses replaced (and the sidewall height set to the
+        junction depth), and what the finding reports (None when no row has such a profile).
+    """
+    kinds = np.asarray(device.profile, dtype=object)
+    diffused = (kinds == "erfc") | (kinds == "gaussian")
+    table = kinds == "table"
+    if not (diffused.any() or table.any()):
+        return device, None
+    bg, ell, xj = diffused_junction(device, mat)
+    cs = device.surface_concentration
+    _rule(problems, diffused & _given(bg) & ~(cs > bg), "surface_concentration",
+          "{cs:.4g} cm^-3 is not above the substrate doping {bg:.4g} cm^-3: the diffused p side makes no junction",
+          {"cs": cs / 1e6, "bg": bg / 1e6})
+    n_thick = np.where(table, np.nan, device.n.thickness)
+    tabled = {}
+    for i in np.flatnonzero(table).tolist():
+        tabled[i] = _table_profile(device.profile_table[i])
+        xj[i] = tabled[i].junctions[0]
+        n_thick[i] = tabled[i].length - xj[i]
+    mask = diffused | table
+    rows = np.flatnonzero(mask)  # the work is done on these rows only
+    na, nd = np.full(len(device), np.nan), np.full(len(device), np.nan)
+    na[rows], nd[rows] = _equivalent_dopings(
+        kinds[rows], bg[rows], cs[rows], ell[rows], xj[rows], n_thick[rows], device.n.neutral_width[rows],
+        [tabled.get(i) for i in rows.tolist()] if tabled else None, env["ni"][rows], env["t"][rows],
+        env["eps"][rows], device.reference_bias[rows])
+    nan = np.full(len(device), np.nan)
+
+    def side(s, doping, thickness, neutral_width):
+        return replace(s, doping=np.where(mask, doping, s.doping), resistivity=np.where(mask, nan, s.resistivity),
+                       thickness=np.where(mask, thickness, s.thickness),
+                       neutral_width=np.where(mask, neutral_width, s.neutral_width))
+
+    out = replace(device, p=side(device.p, na, xj, nan),
+                  n=side(device.n, nd, n_thick, np.where(table, nan, device.n.neutral_width)),
+                  junction_depth=np.where(mask, xj, device.junction_depth))
+    return out, {"mask": mask}
+
+
+def _equivalent_dopings(kinds, bg, cs, ell, xj, n_thick, n_width, tables, ni, t, eps, bias):
+    """The equivalent abrupt junction's NA, ND [m^-3] of profile rows (see :func:`_equivalent_abrupt`).
+
+    ``kinds`` "erfc", "gaussian" or "table"; ``bg``, ``cs``, ``ell`` the substrate doping, surface
+    concentration and characteristic length of the diffused rows; ``xj`` the junction depth; ``n_thick``
+    the n side's thickness (NaN: ``n_width``, its neutral width, was given); ``tables`` each row's
+    tabulated Profile (None for the others, or None for all); ``ni``, ``t``, ``eps``, ``bias`` as in
+    :mod:`modelgen.physics.junction`.
+
+    Notes
+    -----
+    The equivalent junction is modelgen's own construction, made so the closed forms can give every card
+    parameter; the solver takes the true profile. Its depletion extents are the abrupt junction's
+    (Sze & Ng, *Physics of Semiconductor Devices*, 3rd ed., 2007, sec. 2.2). The erfc integral is
+    int_0^u erfc = 1/sqrt(pi) - ierfc(u), ierfc(u) = exp(-u^2)/sqrt(pi) - u erfc(u) (Abramowitz & Stegun,
+    *Handbook of Mathematical Functions*, 1964, 7.2.1 and 7.2.3, from memory).
+    """
+    from scipy.special import erf, erfc
+
+    gauss, plain = kinds == "gaussian", kinds == "erfc"
+    tabled = [(j, p) for j, p in enumerate(tables or ()) if p is not None]
+    sqpi = np.sqrt(np.pi)
+
+    def integral(u):  # integral of the acceptor shape from 0 to u (in units of d)
+        out = np.full(len(u), np.nan)
+        out[gauss] = 0.5 * sqpi * erf(u[gauss])
+        v = u[plain]
+        out[plain] = 1.0 / sqpi - (np.exp(-v * v) / sqpi - v * erfc(v))
+        return out
+
+    def at(x):  # |N| at depth x
+        u = x / ell
+        shape = np.full(len(x), np.nan)
+        shape[gauss] = np.exp(-u[gauss] ** 2)
+        shape[plain] = erfc(u[plain])
+        out = np.abs(bg - cs * shape)
+        for j, p in tabled:
+            out[j] = abs(float(p(x[j])))
+        return out
+
+    def mean(a, b):  # mean |N| over [a, b]
+        out = np.where(b > a, np.abs(bg - cs * ell * (integral(b / ell) - integral(a / ell)) / (b - a)), at(a))
+        for j, p in tabled:
+            out[j] = _table_mean(p, a[j], b[j]) if b[j] > a[j] else out[j]
+        return out
+
+    with np.errstate(all="ignore"):
+        zero = np.zeros(len(kinds))
+        length = xj + np.where(_given(n_thick), n_thick, n_width)
+        p_side, n_side = mean(zero, xj), mean(xj, length)
+        light_p = p_side < n_side
+        heavy = np.where(light_p, n_side, p_side)
+        lo, hi = zero, np.where(light_p, xj, length - xj)
+        for _ in range(_EQUIVALENT_STEPS):
+            x = 0.5 * (lo + hi)
+            light = np.maximum(at(np.where(light_p, xj - x, xj + x)), 1.0)
+            x_heavy = np.minimum(x * light / heavy, np.where(light_p, length - xj, xj))
+            heavy = mean(np.where(light_p, xj + x_heavy, zero), np.where(light_p, length, xj - x_heavy))
+            na, nd = np.where(light_p, light, heavy), np.where(light_p, heavy, light)
+            vj = junction.junction_potential(junction.builtin_voltage(na, nd, ni, t), False, t)
+            _, xp, xn = junction.depletion_width(vj, bias, na, nd, np.nan, False, eps)
+            short = x < np.where(light_p, xp, xn)
+            lo, hi = np.where(short, x, lo), np.where(short, hi, x)
+    return na, nd
+
+
+def _table_profile(table):
+    """The :class:`~modelgen.physics.profiles.Profile` of a :class:`~modelgen.device.ProfileTable`."""
+    return profiles.table(table.depth, table.net_doping)
 
 
 def _electrostatics(device, sides, env, problems):
@@ -473,10 +713,10 @@ def _neutral_region(device, side, name, s, el, problems):
     x_ref = el["x_ref"][name]
     thick = np.where(_given(side.thickness), side.thickness, side.neutral_width + x_ref)
     width = np.where(_given(side.thickness), side.thickness - x_ref, side.neutral_width)
-    _rule(problems, ~(width > 0), f"{name}.thickness",
-          "this side is depleted through to its contact at the reference bias "
-          "(depletion extent {x:.4g} um, thickness {t:.4g} um): no neutral region is left",
-          {"x": x_ref * 1e6, "t": thick * 1e6})
+    _side_rule(problems, device, ~(width > 0), name, "thickness",
+               "this side is depleted through to its contact at the reference bias "
+               "(depletion extent {x:.4g} um, thickness {t:.4g} um): no neutral region is left",
+               {"x": x_ref * 1e6, "t": thick * 1e6})
     s.update(thickness=thick, neutral_width=width)
     with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
         w_l = width / s["diffusion_length"]
@@ -552,9 +792,20 @@ def _breakdown(mat, sides, env, el):
     return {"bv": bv, "e_peak": e_peak, "reach_p": reach_p, "reach_n": reach_n}
 
 
-def _findings(device, mat, sides, env, el, bd):
+#: The finding of a profile the closed forms approximate (kind "profile").
+PROFILE_FINDING = ("the closed forms take this {kind} profile as an equivalent abrupt junction at {xj:.3g} um "
+                   "(p {na:.3g} cm^-3, {tp:.3g} um; n {nd:.3g} cm^-3, {tn:.3g} um): their values only approximate "
+                   "it, and the numerical solver on the true profile is used for the card")
+
+
+def _findings(device, mat, sides, env, el, bd, profile=None):
     """Stage 8: the notes, warnings and cautions, in a fixed order."""
-    found = []
+    p, n = sides["p"], sides["n"]
+    mask = profile["mask"] if profile is not None else np.zeros(len(device), bool)
+    found = [Finding(mask, PROFILE_FINDING,
+                     {"kind": np.asarray(device.profile, dtype=object), "xj": device.junction_depth * 1e6,
+                      "na": p["doping"] / 1e6, "tp": p["thickness"] * 1e6, "nd": n["doping"] / 1e6,
+                      "tn": n["thickness"] * 1e6}, severity="warning", kind="profile")]
     for name in ("p", "n"):
         s = sides[name]
         found.append(Finding(s["lifetime_modelled"], f"{name} side: no lifetime given; using {{model}}, "
