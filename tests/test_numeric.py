@@ -287,3 +287,15 @@ def test_photodiode_warns_of_reverse_leakage(fitted):
     _v, i, _ = run_ngspice(r, f.params, "ngspice", [-5.0, -4.9])
     assert abs(-i[0] / (card * 1e-12) - 1) < 5e-3
     assert f.leakage > numeric.LEAKAGE_FACTOR * f.card_leakage
+
+
+def test_window_near_breakdown_is_warned(fitted):
+    """The solver has no impact ionisation; avalanche multiplication grows steeply towards BV (Sze & Ng
+    2007, ch. 2): a window reaching 80 % of the estimated BV gets a warning naming both voltages."""
+    r, _, _ = fitted["thin_epi_rectifier.toml"]
+    bv = float(r.params["BV"][0])
+    window = numeric.Window(reverse_bias=-0.9 * bv, capacitance_low=-5.0)
+    sw = numeric.sweep(r, 0, window)
+    f = numeric.fit(r, 0, sw, "ngspice")
+    (text,) = [m.text for m in f.findings if m.kind == "numeric-breakdown"]
+    assert f"{-0.9 * bv:g} V" in text and f"{bv:.3g} V" in text
