@@ -768,6 +768,13 @@ def fit(result, i, sweep, dialect):
     out = Fitted(dialect=dialect, params=params, card=card, closed_card=closed, errors=errors,
                  closed_errors=closed_errors, leakage=leakage, card_leakage=card_leakage)
     out.findings = _findings(result, i, sweep, out, target)
+    kept = [k for k in ("CJO", "DC parameters", "TT") if (k not in params if k != "DC parameters" else
+                                                         not set(names) & set(params))]
+    if kept:
+        from .extraction import Message
+        out.findings.insert(1, Message("note", "numeric-kept",
+                                       f"too few points in the window to fit {', '.join(kept)}: the closed-form "
+                                       f"values are kept (a wider window or a finer sweep, refine > 1, helps)"))
     return out
 
 

@@ -299,3 +299,15 @@ def test_window_near_breakdown_is_warned(fitted):
     f = numeric.fit(r, 0, sw, "ngspice")
     (text,) = [m.text for m in f.findings if m.kind == "numeric-breakdown"]
     assert f"{-0.9 * bv:g} V" in text and f"{bv:.3g} V" in text
+
+
+def test_too_narrow_a_window_keeps_the_closed_form_and_says_so(fitted):
+    """A least-squares fit needs more points than parameters (common practice): a window holding one
+    forward point keeps the closed-form DC parameters and TT, with a note."""
+    r, _, _ = fitted["switching_diode.toml"]
+    sw = numeric.sweep(r, 0, numeric.Window(current_low=1e-6, current_high=2e-6))
+    assert sw.in_window.sum() <= 2
+    f = numeric.fit(r, 0, sw, "ngspice")
+    assert not {"IS", "N", "RS", "TT"} & set(f.params)
+    assert f.card["IS"] == f.closed_card["IS"] and f.card["TT"] == f.closed_card["TT"]
+    assert [m for m in f.findings if m.kind == "numeric-kept" and "DC parameters, TT" in m.text]
