@@ -199,7 +199,8 @@ class Sweep:
     reverse_bias, reverse_current : the reverse I-V [V], [A] (current negative).
     cv_bias, capacitance : the C-V [V], [F] (the solver's quasi-static dQ/dV).
     cv_diffusion : an upper estimate of the diffusion part of the C-V, |stored charge| / Vt [F].
-    stopped : why the forward sweep ended ('current' or 'voltage cap').
+    stopped : why the forward sweep ended: 'current' (past the window's top), 'voltage cap', or
+        'solver' (the solver did not converge at a higher bias).
     contact_resistance : [ohm] added to the solver's bias for the terminal voltage (0 when the
         solver reports its own terminal bias).
     """
@@ -316,7 +317,9 @@ def sweep(result, i, window=None, refine=1.0):
     Raises
     ------
     modelgen.physics.driftdiffusion.SolverError
-        The solver did not converge.
+        The solver did not converge at a reverse or C-V bias, or at no
+        forward bias (a failure higher up ends the forward sweep there:
+        ``stopped`` is 'solver').
 
     Notes
     -----
@@ -336,31 +339,51 @@ def sweep(result, i, window=None, refine=1.0):
     guess = _voltage_at(_closed_card(result, i), window.current_high, window.voltage_cap)
     top = min(window.voltage_cap, guess + 6 * vt)
     grid = np.arange(1, int(np.ceil(top / step)) + 1) * step
-    biases = np.concatenate([grid, reverse, cv])
-    want_c = np.concatenate([np.zeros(len(grid) + len(reverse), bool), np.ones(len(cv), bool)])
-    sols = [driftdiffusion.solve(s, biases, mesh=mesh, capacitance=want_c)]
-    parts = [(sols[0], np.arange(len(grid)))]
 
     def terminal(sol):
         tb = getattr(sol, "terminal_bias", None)
         return np.asarray(tb, float) if tb is not None else sol.bias + sol.current * rc
 
+    def solve(forward, extra=(), want=None):
+        biases = np.concatenate([forward, *extra])
+        want = np.zeros(len(biases), bool) if want is None else np.concatenate([np.zeros(len(forward), bool), want])
+        return driftdiffusion.solve(s, biases, mesh=mesh, capacitance=want)
+
+    # reverse and C-V ride along with the first forward piece; if the solver fails anywhere in that
+    # piece, they are solved alone and the forward sweep goes on in pieces
+    tail = np.concatenate([np.zeros(len(reverse), bool), np.ones(len(cv), bool)])
+    try:
+        first = solve(grid, (reverse, cv), tail)
+    except driftdiffusion.SolverError:
+        grid = grid[:0]
+        first = solve(grid, (reverse, cv), tail)
+    parts = [(first, np.arange(len(grid)))] if len(grid) else []
+    failed = None
     # extend until the current passes the top or the terminal voltage passes the cap
     while True:
-        sol, idx = parts[-1]
-        last_v, last_i = terminal(sol)[idx[-1]], sol.current[idx[-1]]
-        if last_i >= window.current_high or last_v >= window.voltage_cap:
-            break
-        start = sol.bias[idx[-1]]
+        if parts:
+            sol, idx = parts[-1]
+            last_v, last_i = terminal(sol)[idx[-1]], sol.current[idx[-1]]
+            if last_i >= window.current_high or last_v >= window.voltage_cap:
+                break
+            start = sol.bias[idx[-1]]
+        else:
+            start = 0.0
         more = start + np.arange(1, max(round(0.2 / step), 2) + 1) * step
-        ext = driftdiffusion.solve(s, more, mesh=mesh, capacitance=False)
-        parts.append((ext, np.arange(len(more))))
+        try:
+            parts.append((solve(more), np.arange(len(more))))
+        except driftdiffusion.SolverError:
+            failed = float(more[-1])
+            break
+    if not parts:
+        raise driftdiffusion.SolverError(f"no forward bias up to {failed:.3g} V converged")
+
     def pick(get):
         return np.concatenate([get(sol)[idx] for sol, idx in parts])
 
     vf, cur = pick(terminal), pick(lambda sol: sol.current)
     area = s.area
-    comps = {k: np.concatenate([sol.components[k][idx] for sol, idx in parts]) * area for k in sols[0].components}
+    comps = {k: np.concatenate([sol.components[k][idx] for sol, idx in parts]) * area for k in first.components}
     stored = pick(lambda sol: sol.stored_charge) * area
     vjn = pick(lambda sol: sol.junction_voltage)
     inj = np.concatenate([_lighter_edge_injection(sol, s)[idx] for sol, idx in parts])
@@ -368,7 +391,7 @@ def sweep(result, i, window=None, refine=1.0):
     over = np.flatnonzero(cur >= window.current_high)
     keep = np.arange(len(vf)) <= (over[0] if len(over) else len(vf))
     keep &= vf <= window.voltage_cap * (1 + 1e-12)
-    stopped = "current" if len(over) and keep[over[0]] else "voltage cap"
+    stopped = "current" if len(over) and keep[over[0]] else "solver" if failed is not None else "voltage cap"
     vf, cur, stored, vjn, inj = vf[keep], cur[keep], stored[keep], vjn[keep], inj[keep]
     comps = {k: v[keep] for k, v in comps.items()}
     if not (np.all(np.isfinite(cur)) and np.all(np.isfinite(vf))):
@@ -376,10 +399,9 @@ def sweep(result, i, window=None, refine=1.0):
     region = np.where(comps["srh_depletion"] >= RECOMBINATION_SHARE * cur, "recombination", "ideal").astype(object)
     region[inj >= HIGH_INJECTION] = "high injection"
     in_window = (cur >= window.current_low * (1 - 1e-12)) & (cur <= window.current_high * (1 + 1e-12))
-    first = sols[0]
     nr = len(grid)
     rsel = np.arange(nr, nr + len(reverse))
-    csel = np.arange(nr + len(reverse), len(biases))
+    csel = np.arange(nr + len(reverse), nr + len(reverse) + len(cv))
     ccv = first.capacitance[csel]
     # diffusion part: the stored charge grows as exp(V / (n Vt)), n >= 1, so |Q| / Vt bounds dQ/dV
     cdiff = np.abs(first.stored_charge[csel] * area) / vt
@@ -791,6 +813,11 @@ def _findings(result, i, sweep, fitted, target):
                          f"fitted to the drift-diffusion solver over {_si(w.current_low, 'A')} .. "
                          f"{_si(w.current_high, 'A')} forward, {w.reverse_bias:g} V reverse, C-V "
                          f"{w.capacitance_low:g} .. {w.capacitance_high:g} V; worst error by region: {table}"))
+    if sweep.stopped == "solver":
+        top = sweep.forward_current[sweep.in_window].max(initial=0.0)
+        found.append(Message("warning", "numeric-window",
+                             f"the solver did not converge above {sweep.forward_bias[-1]:.3g} V: the forward "
+                             f"sweep stopped at {_si(top, 'A')}, below the window's top {_si(w.current_high, 'A')}"))
     if sweep.stopped == "voltage cap":
         top = sweep.forward_current[sweep.in_window].max(initial=0.0)
         found.append(Message("note", "numeric-window",

@@ -311,3 +311,24 @@ def test_too_narrow_a_window_keeps_the_closed_form_and_says_so(fitted):
     assert not {"IS", "N", "RS", "TT"} & set(f.params)
     assert f.card["IS"] == f.closed_card["IS"] and f.card["TT"] == f.closed_card["TT"]
     assert [m for m in f.findings if m.kind == "numeric-kept" and "DC parameters, TT" in m.text]
+
+
+def test_solver_failure_high_up_ends_the_sweep_there(fitted, monkeypatch):
+    """Where the solver fails at a high forward bias, the sweep keeps what converged, the fit uses it
+    and a warning names the bias (bad physics is never a card without a word; DEVELOPERS.md)."""
+    from modelgen.physics import driftdiffusion
+
+    r, _, _ = fitted["thin_epi_rectifier.toml"]
+    real = driftdiffusion.solve
+
+    def failing(structure, biases, *args, **kw):
+        if np.max(biases) > 0.6:
+            raise driftdiffusion.SolverError("no convergence (test)")
+        return real(structure, biases, *args, **kw)
+
+    monkeypatch.setattr(driftdiffusion, "solve", failing)
+    sw = numeric.sweep(r, 0)
+    assert sw.stopped == "solver" and sw.forward_bias.max() <= 0.6
+    assert len(sw.reverse_bias) == 6 and len(sw.cv_bias) == 12
+    f = numeric.fit(r, 0, sw, "ngspice")
+    assert [m for m in f.findings if m.kind == "numeric-window" and m.severity == "warning"]
