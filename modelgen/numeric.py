@@ -50,6 +50,7 @@ from scipy.optimize import least_squares
 
 from . import structures, targets
 from .cards.render import card_values
+from .constants import thermal_voltage
 from .errors import InputError
 from .physics import driftdiffusion
 from .spice import evaluator
@@ -87,9 +88,9 @@ class WindowError(InputError, ValueError):
     """A fit window that cannot be used (located by file, row and key when it came from a description)."""
 
 
-def _check(ok, message, key, where):
+def _check(ok, message, key):
     if not ok:
-        raise WindowError(message, key=key, **where)
+        raise WindowError(message, key=key)
 
 
 @dataclass(frozen=True)
@@ -121,32 +122,30 @@ class Window:
 
     def validate(self):
         """Raise :class:`WindowError` (keyed ``fit.*``) on a window that cannot be swept."""
-        where = {}
         for name in ("current_low", "current_high", "voltage_cap", "reverse_bias", "capacitance_low",
                      "capacitance_high"):
             v = getattr(self, name)
             _check(isinstance(v, (int, float)) and math.isfinite(v), f"must be a finite number, got {v!r}",
-                   f"fit.{name}", where)
+                   f"fit.{name}")
         _check(self.current_low > 0, f"the forward current range must be positive, got {self.current_low:g} A",
-               "fit.current_low", where)
+               "fit.current_low")
         _check(self.current_low < self.current_high,
                f"the low current ({self.current_low:g} A) must be below the high current ({self.current_high:g} A)",
-               "fit.current_low", where)
+               "fit.current_low")
         _check(self.current_high <= 1e4, f"a top current of {self.current_high:g} A is beyond any diode",
-               "fit.current_high", where)
+               "fit.current_high")
         _check(0.1 <= self.voltage_cap <= 10.0,
-               f"the forward voltage cap must be within 0.1 .. 10 V, got {self.voltage_cap:g} V", "fit.voltage_cap",
-               where)
+               f"the forward voltage cap must be within 0.1 .. 10 V, got {self.voltage_cap:g} V", "fit.voltage_cap")
         _check(self.reverse_bias < 0, f"the reverse bias must be negative, got {self.reverse_bias:g} V",
-               "fit.reverse_bias", where)
+               "fit.reverse_bias")
         _check(self.capacitance_low < self.capacitance_high,
                f"the capacitance range's low end ({self.capacitance_low:g} V) must be below its high end "
-               f"({self.capacitance_high:g} V)", "fit.capacitance_low", where)
+               f"({self.capacitance_high:g} V)", "fit.capacitance_low")
         _check(self.capacitance_high <= 0.5,
                f"the capacitance range must stay below 0.5 V forward (diffusion charge), got "
-               f"{self.capacitance_high:g} V", "fit.capacitance_high", where)
+               f"{self.capacitance_high:g} V", "fit.capacitance_high")
         _check(self.capacitance_low >= -1e4 and self.reverse_bias >= -1e4, "reverse biases beyond -10 kV",
-               "fit.reverse_bias", where)
+               "fit.reverse_bias")
 
     @classmethod
     def from_device(cls, device, i):
@@ -234,7 +233,6 @@ class Sweep:
 
 
 def _thermal_voltage(t):
-    from .constants import thermal_voltage
     return float(thermal_voltage(t))
 
 
@@ -249,7 +247,7 @@ def _voltage_at(card, current, cap, simulator="ngspice"):
     lo, hi = 0.0, float(cap)
     if evaluator.dc_current(card, hi, simulator, gmin=0.0)[0] < current:
         return hi
-    for _ in range(50):
+    for _ in range(25):  # to 0.1 mV: a guess
         mid = 0.5 * (lo + hi)
         if evaluator.dc_current(card, mid, simulator, gmin=0.0)[0] < current:
             lo = mid
@@ -261,32 +259,35 @@ def _voltage_at(card, current, cap, simulator="ngspice"):
 def _lighter_edge_injection(sol, structure):
     """Minority density over doping at the lighter side's depletion edge, per bias [-].
 
-    The depletion edge is the first node, walking from the junction into the
-    lighter side, where the majority density is at least half the net
-    doping (the solver's own split of depletion and neutral nodes).
+    Each side's doping is its net doping at its equilibrium depletion edge:
+    the first node, walking from the junction outwards, where the majority
+    density is within a factor two of the net doping (so that a graded
+    profile's compensated nodes at the junction, and a contact layer beyond
+    a lightly doped region, do not count). The lighter side is the side with
+    the smaller; at each bias its depletion edge is the first node outwards
+    where the majority density is at least half the net doping and the net
+    doping at least half the side's (the solver's own split of depletion and
+    neutral nodes). Where no such node is left the side is flooded (inf).
     """
     m = sol.mesh
-    x = m.x
-    c = structure.profile(x)
+    c = structure.profile(m.x)
     k = m.junction
-    lighter_p = abs(c[0]) <= abs(c[-1])
-    if lighter_p:
-        nodes = np.arange(k, -1, -1)  # junction -> p contact
-        major, minor = sol.p[:, nodes], sol.n[:, nodes]
-    else:
-        nodes = np.arange(k, len(x))
-        major, minor = sol.n[:, nodes], sol.p[:, nodes]
-    dop = np.abs(c[nodes])
-    side = (c[nodes] < 0) if lighter_p else (c[nodes] > 0)
-    neutral = side[None, :] & (major >= 0.5 * dop[None, :])
+    eq_n, eq_p = np.exp(m.equilibrium[:, 1]) * m.c0, np.exp(m.equilibrium[:, 2]) * m.c0
+    sides = []
+    for nodes, major_eq, sign in ((np.arange(k, -1, -1), eq_p, -1.0), (np.arange(k, len(c)), eq_n, 1.0)):
+        dop = sign * c[nodes]
+        edge = (dop > 0) & (major_eq[nodes] >= 0.5 * dop) & (major_eq[nodes] <= 2.0 * dop)
+        sides.append((nodes, dop, float(dop[np.argmax(edge)]) if edge.any() else np.inf))
+    (nodes, dop, doping), lighter_p = min(sides[0], sides[1], key=lambda t: t[2]), sides[0][2] <= sides[1][2]
+    major, minor = (sol.p, sol.n) if lighter_p else (sol.n, sol.p)
+    major, minor = major[:, nodes], minor[:, nodes]
+    neutral = ((dop >= 0.5 * doping)[None, :]) & (major >= 0.5 * dop[None, :])
     first = np.argmax(neutral, axis=1)
-    found = neutral[np.arange(len(first)), first]
-    # against the side's doping at its contact (the plateau of a graded profile)
-    ratio = minor[np.arange(len(first)), first] / abs(c[0] if lighter_p else c[-1])
-    return np.where(found, ratio, np.inf)  # no neutral region left: flooded
+    rows = np.arange(len(first))
+    return np.where(neutral[rows, first], minor[rows, first] / doping, np.inf)
 
 
-def sweep(result, i, window=None, refine=1.0):
+def sweep(result, i, window=None, refine=1.0, structure=None):
     """The solver's I-V, C-V, stored charge and current split of row ``i`` over ``window``.
 
     Forward biases are :data:`STEP_VT` thermal voltages apart (divided by
@@ -309,6 +310,10 @@ def sweep(result, i, window=None, refine=1.0):
         Default :class:`Window` ().
     refine : float
         Density multiplier of the solver's mesh and of the forward bias grid (1 = working).
+    structure : modelgen.physics.driftdiffusion.Structure, optional
+        Solved instead of :func:`modelgen.structures.structure_for` of the
+        row, e.g. a profile with more layers than the description gives
+        (the closed-form card still comes from ``result``).
 
     Returns
     -------
@@ -329,7 +334,7 @@ def sweep(result, i, window=None, refine=1.0):
     Boltzmann statistics, reverse biases short of breakdown.
     """
     window = Window() if window is None else window
-    s = structures.structure_for(result, i)
+    s = structures.structure_for(result, i) if structure is None else structure
     vt = _thermal_voltage(s.temperature)
     step = STEP_VT * vt / float(refine)
     rc = float(np.nan_to_num(np.asarray(result.device.contact_resistance, float)[i]))

@@ -332,3 +332,35 @@ def test_solver_failure_high_up_ends_the_sweep_there(fitted, monkeypatch):
     assert len(sw.reverse_bias) == 6 and len(sw.cv_bias) == 12
     f = numeric.fit(r, 0, sw, "ngspice")
     assert [m for m in f.findings if m.kind == "numeric-window" and m.severity == "warning"]
+
+
+def test_pin_rectifier_with_its_n_plus_layer():
+    """The invented power diode with its n+ substrate as a layer (the description gives only two
+    sides; the solver takes the profile): a p-i-n whose 50 um drift region is flooded passes
+    1000 A/cm^2 at about 1 V (Baliga 2008, ch. 5, from memory: 0.9 .. 1.2 V), where the unmodulated
+    closed-form RS alone would drop hundreds of volts; its ideality rises towards 2 (high injection in
+    the drift region) and falls back towards 1 (end-region recombination; Baliga 2008, ch. 5), which
+    the level-1 card's knee cannot follow: a high-injection warning."""
+    from modelgen.physics import driftdiffusion, profiles
+
+    r = extraction.derive(description.from_mapping(POWER))
+
+    def net(x):
+        return np.where(x < 5e-6, -1e25, np.where(x < 55e-6, 1e20, 1e25))  # p+ 1e19 / n- 1e14 / n+ 1e19 cm^-3
+
+    s = driftdiffusion.structure_from_profile(profiles.Profile(net, 60e-6, (5e-6,), (5e-6, 55e-6)),
+                                              area=1e-6, lifetimes=(1e-8, 1e-5))
+    sw = numeric.sweep(r, 0, numeric.Window(current_high=10.0), structure=s)
+    assert sw.stopped == "current"
+    v_at_10a = np.interp(np.log(10.0), np.log(sw.forward_current), sw.forward_bias)
+    assert 0.85 < v_at_10a < 1.2
+    assert float(r.params["RS"][0]) * 10.0 > 100.0
+    vt = sc.k * 300.15 / sc.e
+    n = np.gradient(sw.forward_bias, np.log(sw.forward_current)) / vt
+    hi = sw.mask("high injection")
+    peak = np.argmax(np.where(hi, n, 0))
+    after = hi & (np.arange(len(n)) > peak)
+    assert n[peak] > 1.7 and n[after].min() < 1.3
+    f = numeric.fit(r, 0, sw, "ngspice")
+    assert f.errors["high injection"] > 0.05
+    assert [m for m in f.findings if m.kind == "numeric-region" and m.text.startswith("high injection")]
