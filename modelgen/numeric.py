@@ -52,6 +52,7 @@ from . import structures, targets
 from .cards.render import card_values
 from .constants import thermal_voltage
 from .errors import InputError
+from .extraction import Message
 from .physics import driftdiffusion
 from .spice import evaluator
 
@@ -794,20 +795,18 @@ def fit(result, i, sweep, dialect):
     card_leakage = float(-_forward_current(card, sweep.reverse_bias[k_rev:k_rev + 1], sim)[0])
     out = Fitted(dialect=dialect, params=params, card=card, closed_card=closed, errors=errors,
                  closed_errors=closed_errors, leakage=leakage, card_leakage=card_leakage)
-    out.findings = _findings(result, i, sweep, out, target)
-    kept = [k for k in ("CJO", "DC parameters", "TT") if (k not in params if k != "DC parameters" else
-                                                         not set(names) & set(params))]
+    out.findings = _findings(sweep, out, target)
+    kept = [what for what, done in (("CJO, VJ, M", "CJO" in params), ("DC parameters", "IS" in params),
+                                    ("TT", "TT" in params)) if not done]
     if kept:
-        from .extraction import Message
         out.findings.insert(1, Message("note", "numeric-kept",
                                        f"too few points in the window to fit {', '.join(kept)}: the closed-form "
                                        f"values are kept (a wider window or a finer sweep, refine > 1, helps)"))
     return out
 
 
-def _findings(result, i, sweep, fitted, target):
-    from .extraction import Message
-
+def _findings(sweep, fitted, target):
+    """The notes and warnings of a fit: what it covered, where its target's equations fall short."""
     sim = target.simulator
     w = sweep.window
     found = []
@@ -860,14 +859,14 @@ def _findings(result, i, sweep, fitted, target):
             f"the window reaches {-deepest:g} V, beyond {100 * BREAKDOWN_SHARE:.0f} % of the estimated breakdown "
             f"voltage {bv:.3g} V: the solver has no impact ionisation, so its reverse current there is not "
             f"the device's"))
-    if fitted.leakage > LEAKAGE_FACTOR * fitted.card_leakage:
+    if fitted.leakage > LEAKAGE_FACTOR * max(fitted.card_leakage, 1e-300):
         extra = {"ngspice": "ngspice applies ISR in forward bias only",
                  "gnucap": "gnucap's diode has no ISR"}.get(sim.name, "")
         found.append(Message(
             "warning", "numeric-leakage",
             f"reverse leakage: at {w.reverse_bias:g} V the physics gives {_si(fitted.leakage, 'A')} "
             f"(depletion-region generation), the card {_si(fitted.card_leakage, 'A')}, "
-            f"{fitted.leakage / fitted.card_leakage:.3g} times less" + (f"; {extra}" if extra else "")))
+            f"{fitted.leakage / max(fitted.card_leakage, 1e-300):.3g} times less" + (f"; {extra}" if extra else "")))
     return found
 
 
@@ -880,11 +879,10 @@ def _resistance_finding(sweep, fitted, sim):
     thermal voltages (below, the split is too small to tell). A lightly doped
     region flooded by high injection (conductivity modulation; Baliga 2008,
     ch. 5) has a series resistance far below its unmodulated one, and one
-    that changes with current, which no constant RS follows. The warning gives the card's and the physics' terminal
-    voltages at the current where they differ most.
+    that changes with current, which no constant RS follows. The warning
+    gives the card's and the physics' terminal voltages at the current where
+    they differ most.
     """
-    from .extraction import Message
-
     vt = _thermal_voltage(sweep.temperature)
     w = sweep.in_window
     v, i = sweep.forward_bias[w], sweep.forward_current[w]
