@@ -69,6 +69,8 @@ HIGH_INJECTION = 0.1
 TOLERANCE = 0.05
 #: Departure of the physics from the fitted card's constant RS that gets a warning [-].
 RS_DEPARTURE = 0.10
+#: A fitted RS whose drop at the window's top current is below this many thermal voltages is written 0.
+NEGLIGIBLE_DROP = 1e-3
 #: The card's reverse current this many times below the physics gets a leakage warning.
 LEAKAGE_FACTOR = 10.0
 #: Capacitance points whose diffusion part (dQ/dV of the stored charge) is below this share
@@ -782,11 +784,18 @@ def fit(result, i, sweep, dialect):
     template = _with(closed, params)
     names = [k for k in DC_PARAMETERS if k in target.carries]
     params.update(_fit_dc(template, names, sweep, sim))
+    if "RS" in params and sweep.in_window.any():
+        # a drop far below Vt at the window's top current is no resistance the window can see; kept, a
+        # micro-ohm RS makes the simulator's current the difference of two node voltages over it, which
+        # double precision resolves only to eps V / RS (5e-11 A at 1 uohm): written as 0 instead
+        top = float(np.max(sweep.forward_current[sweep.in_window]))
+        if params["RS"] * top < NEGLIGIBLE_DROP * _thermal_voltage(sweep.temperature):
+            params["RS"] = 0.0
     tt = _transit_time(sweep, _with(template, params), sim)
     if np.isfinite(tt) and tt > 0:
         params["TT"] = tt
     for k, v in params.items():
-        if not (math.isfinite(v) and v > 0):
+        if not (math.isfinite(v) and (v > 0 or (k == "RS" and v == 0))):
             raise driftdiffusion.SolverError(f"the fit gave {k} = {v!r}")
     card = dict(card_values(sub, 0, dialect, params)[0])
     errors, closed_errors = errors_of(card, sweep, dialect), errors_of(closed, sweep, dialect)
