@@ -164,6 +164,55 @@ def main():
     """
 
 
+def _window_options(f):
+    """The fit-window options shared by card and solve (each overrides the description's [fit] key)."""
+    f = click.option("--cv-range", nargs=2, metavar="LOW HIGH",
+                     help="Bias range of the C-V fit, with units (e.g. \"-5 V\" \"0.3 V\"); default the "
+                          "description's [fit] capacitance_low/high, else -5 V .. 0.3 V.")(f)
+    f = click.option("--reverse-bias", metavar="V",
+                     help="Reverse bias of the reverse I-V and the leakage, with its unit (e.g. \"-10 V\"); "
+                          "default the description's [fit] reverse_bias, else -5 V.")(f)
+    f = click.option("--current-range", nargs=2, metavar="LOW HIGH",
+                     help="Forward current range of the fit, with units (e.g. \"1 nA\" \"100 mA\"); default "
+                          "the description's [fit] current_low/high, else 1 nA .. 100 mA.")(f)
+    return f
+
+
+def _window(result, file, current_range, reverse_bias, cv_range):
+    """The fit window of device 0: the description's, then the command line's values over it."""
+    import dataclasses
+
+    from . import numeric
+    from .units import parse_quantity
+
+    given = {}
+    try:
+        if current_range:
+            given["current_low"], given["current_high"] = (parse_quantity(v, "current", key="--current-range")
+                                                           for v in current_range)
+        if reverse_bias is not None:
+            given["reverse_bias"] = parse_quantity(reverse_bias, "voltage", key="--reverse-bias")
+        if cv_range:
+            given["capacitance_low"], given["capacitance_high"] = (parse_quantity(v, "voltage", key="--cv-range")
+                                                                   for v in cv_range)
+        window = numeric.Window.from_device(result.device, 0)
+        return dataclasses.replace(window, **given) if given else window
+    except InputError as e:
+        _fail(str(e.located(file=file)) if not e.file and not given else str(e))
+
+
+def _numeric(result, file, dialect, window):
+    """Sweep and fit device 0 with the solver; a solver failure is one line, exit 2."""
+    from . import numeric
+    from .physics.driftdiffusion import SolverError
+
+    try:
+        sw = numeric.sweep(result, 0, window)
+        return sw, numeric.fit(result, 0, sw, dialect)
+    except SolverError as e:
+        _fail(f"{file}: the numerical solver failed: {e}")
+
+
 @main.command("card")
 @click.argument("device_files", metavar="DEVICE.toml...", nargs=-1, required=True,
                 type=click.Path())
@@ -177,12 +226,19 @@ def main():
                    "sidewall terms), gnucap (gnucap's diode set).")
 @click.option("--section", metavar="NAME",
               help="Put the cards in a named library section (.lib NAME ... .endl NAME); ngspice dialect only.")
+@click.option("--physics", type=click.Choice(["closed", "numeric"]), default="closed", show_default=True,
+              help="closed: the closed forms (fast, exact at low injection). numeric: solve each device with "
+                   "the built-in drift-diffusion solver and fit IS, N, ISR, NR, IKF, RS, CJO, VJ, M and TT to it "
+                   "over the fit window in the dialect's own equations (about 1-2 s a device). A diffused or "
+                   "tabulated profile always takes the numeric path.")
+@_window_options
 @click.option("--form", type=click.Choice(["model", "subckt"]), default="model", show_default=True,
               help="model: a .model card. subckt: a .subckt holding the diode and a behavioural source for the "
                    "depletion region's reverse generation current, which no target's diode equations carry "
                    "(ngspice dialect; instantiate it as X1 anode cathode NAME).")
 @click.option("-q", "--quiet", is_flag=True, help="Do not repeat the warnings on stderr.")
-def card_command(device_files, output, fmt, dialect, section, form, quiet):
+def card_command(device_files, output, fmt, dialect, section, physics, current_range, reverse_bias, cv_range,
+                 form, quiet):
     """Derive the model card of each device described in DEVICE.toml.
 
     One file gives one card; several files give one library of cards (for
@@ -191,13 +247,27 @@ def card_command(device_files, output, fmt, dialect, section, form, quiet):
     reach-through, degenerate doping, ...) are written into each card's
     header and the JSON, and repeated on stderr unless -q.
 
+    With --physics numeric the card is fitted to the numerical solution over
+    the fit window (the description's [fit] table, the options below, or
+    1 nA .. 100 mA forward, -5 V reverse, C-V -5 .. 0.3 V), and its header
+    and JSON give the worst error per bias region, of the fitted and of the
+    closed-form card.
+
     \b
     Examples:
       modelgen card examples/switching_diode.toml
       modelgen card examples/thin_epi_rectifier.toml --format json -o rect.json
       modelgen card examples/*.toml --dialect ngspice --section typical -o demo.lib
+      modelgen card examples/graded_varactor.toml --dialect ngspice --physics numeric
+      modelgen card examples/photodiode.toml --dialect ngspice --form subckt
     """
+    from . import structures
+
     _check_output(output, device_files)
+    target = targets.get(dialect)
+    if form == "subckt" and target.leakage_template is None:
+        _fail(f"--form subckt: the {dialect} dialect has no behavioural source; use --dialect "
+              + " or ".join(n for n, t in targets.TARGETS.items() if t.leakage_template))
     loaded = []
     for f in device_files:
         try:
@@ -205,34 +275,118 @@ def card_command(device_files, output, fmt, dialect, section, form, quiet):
             loaded.append((extraction.derive(device), raw))
         except InputError as e:
             _fail(str(e.located(file=f)))
-    sources = [None] * len(loaded)
-    extra = ()
+    # per device: the Result the card is rendered from, its overrides, header lines, source, JSON extra
+    made = []
+    for (r, raw), f in zip(loaded, device_files):
+        numeric_path = physics == "numeric" or not bool(structures.closed_form_holds(r)[0])
+        if numeric_path:
+            from . import numeric
+
+            sw, fitted = _numeric(r, f, dialect, _window(r, f, current_range, reverse_bias, cv_range))
+            source = None
+            if form == "subckt":
+                try:
+                    source = numeric.generation_source(sw, fitted)
+                except ValueError as e:
+                    _fail(f"{f}: {e}")
+            made.append((numeric.card_result(r, 0, fitted), fitted.params, numeric.header_lines(sw, fitted),
+                         source, "the numerical solver", numeric.fit_document(sw, fitted)))
+        else:
+            source = None
+            if form == "subckt":
+                window = _window(r, f, current_range, reverse_bias, cv_range)
+                try:
+                    source = leakage.closed_form(r, cards.card_columns(r, dialect)[1], window.reverse_bias,
+                                                 target.equations)
+                except ValueError as e:
+                    _fail(f"{f}: {e}")
+            made.append((r, None, (), source, "the closed forms", {"physics": "closed"}))
+    if len(made) == 1:
+        extra = list(made[0][2])
+    else:
+        fitted_count = sum(bool(m[2]) for m in made)
+        extra = [f"physics: {fitted_count} of {len(made)} cards fitted to the numerical (1-D drift-diffusion) "
+                 "solver, each with a note giving its window and worst error per region; the others from the "
+                 "closed forms"] if fitted_count else []
+    sources = [m[3] for m in made]
     if form == "subckt":
-        if targets.get(dialect).leakage_template is None:
-            _fail(f"--form subckt: the {dialect} dialect has no behavioural source; use --dialect "
-                  + " or ".join(n for n, t in targets.TARGETS.items() if t.leakage_template))
-        sources = [leakage.closed_form(r, cards.card_columns(r, dialect)[1], leakage.window_reverse_bias(r, 0),
-                                       targets.get(dialect).equations) for r, _ in loaded]
-        extra = leakage.header_lines(sources)
+        extra += leakage.header_lines(sources, against=" and ".join(dict.fromkeys(m[4] for m in made)))
     if fmt == "json":
-        text = cards.as_json_list([cards.row_document(r, 0) for r, _ in loaded])
-    elif len(loaded) == 1 and section is None:
-        text = cards.card(loaded[0][0], 0, dialect=dialect, inputs=loaded[0][1], extra=extra,
-                          source=sources[0] and sources[0].values())
+        docs = []
+        for (r, params, _, source, _, fitdoc) in made:
+            doc = cards.row_document(r, 0)
+            if params:
+                doc["params"].update({k: v for k, v in params.items()})
+                doc["params"] = cards.json_safe(doc["params"])
+            doc["fit"] = cards.json_safe(fitdoc)
+            if source is not None:
+                doc["generation_source"] = cards.json_safe({k: float(v[0]) for k, v in source.values().items()}
+                                                           | {"worst_error": float(source.worst_error[0])})
+            docs.append(doc)
+        text = cards.as_json_list(docs)
+    elif len(made) == 1 and section is None:
+        r, params, _, source, _, _ = made[0]
+        text = cards.card(r, 0, dialect=dialect, inputs=loaded[0][1], overrides=params, extra=extra,
+                          source=source and source.values())
     else:
         try:
-            parts = [cards.Part(r, rows=[0], section=section, inputs=[raw] if raw else None,
-                                source=g and g.values()) for (r, raw), g in zip(loaded, sources)]
+            parts = [cards.Part(r, rows=[0], section=section, inputs=[raw] if raw else None, overrides=params,
+                                source=source and source.values())
+                     for (r, params, _, source, _, _), (_, raw) in zip(made, loaded)]
             text = cards.render(parts, dialect, title="diode model library", extra=extra)
         except ValueError as e:
             _fail(str(e))
     if not quiet:
-        for (r, _), f in zip(loaded, device_files):
-            prefix = f"{f}: " if len(loaded) > 1 else ""
+        for (r, *_), f in zip(made, device_files):
+            prefix = f"{f}: " if len(made) > 1 else ""
             for m in r.findings_for(0):
                 if m.severity != "note":
                     click.echo(f"modelgen: {prefix}{m.severity}: {m.text}", err=True)
     _emit(text, output, device_files)
+
+
+@main.command("solve")
+@click.argument("device_file", metavar="DEVICE.toml", type=click.Path())
+@click.option("--dialect", type=DIALECT, default="ngspice", show_default=True,
+              help="Whose diode equations evaluate the cards (and which parameters the fitted card may use).")
+@_window_options
+@click.option("--format", "fmt", type=click.Choice(["table", "json"]), default="table", show_default=True,
+              help="table: bias, region, physics, closed-form card and fitted card currents with their errors. "
+                   "json: {forward, reverse, capacitance, components, card_error, ...}, all SI.")
+@click.option("-o", "--output", type=click.Path(), help="Write to this file (atomically) instead of stdout.")
+@click.option("-q", "--quiet", is_flag=True, help="Do not repeat the warnings on stderr.")
+def solve_command(device_file, dialect, current_range, reverse_bias, cv_range, fmt, output, quiet):
+    """Solve DEVICE.toml numerically and compare the closed-form and the fitted card with it.
+
+    Runs the built-in drift-diffusion solver over the fit window (forward
+    I-V up to the top current, reverse I-V, C-V), fits a card to it as
+    `card --physics numeric` does, and prints for each bias inside the
+    window the physics' current, the closed-form card's and the fitted
+    card's (in the dialect's simulator equations) and their errors, then the
+    worst error per region. No card is written.
+
+    \b
+    Examples:
+      modelgen solve examples/switching_diode.toml
+      modelgen solve examples/photodiode.toml --reverse-bias "-10 V" --format json -o pd.json
+    """
+    from . import numeric
+
+    _check_output(output, (device_file,))
+    try:
+        r = extraction.derive(description.load(device_file))
+    except InputError as e:
+        _fail(str(e.located(file=device_file)))
+    sw, fitted = _numeric(r, device_file, dialect, _window(r, device_file, current_range, reverse_bias, cv_range))
+    if fmt == "json":
+        text = cards.dumps(numeric.solve_document(r.device.name[0], sw, fitted))
+    else:
+        text = numeric.solve_table(sw, fitted)
+    if not quiet:
+        for m in [*r.findings_for(0), *fitted.findings]:
+            if m.severity != "note":
+                click.echo(f"modelgen: {m.severity}: {m.text}", err=True)
+    _emit(text, output, (device_file,))
 
 
 @main.command("check")

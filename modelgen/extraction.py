@@ -55,6 +55,16 @@ KINDS = {
     "graded_reach_through": "graded depletion wider than a side at breakdown (BV an upper estimate)",
     "breakdown_estimate": "breakdown is an estimate",
     "profile": "diffused or tabulated profile (closed forms approximate it)",
+    # a card fitted to the numerical solver (modelgen.numeric)
+    "numeric-fit": "card fitted to the numerical solver",
+    "numeric-kept": "closed-form values kept where the window could not fit them",
+    "numeric-window": "the forward sweep stopped short of the window",
+    "numeric-sidewall": "fitted totals split into bottom and sidewall",
+    "numeric-region": "a bias region the target's equations cannot follow",
+    "numeric-capacitance": "C-V departs from the physics",
+    "numeric-resistance": "series resistance departs from a constant RS (conductivity modulation)",
+    "numeric-breakdown": "fit window near breakdown",
+    "numeric-leakage": "reverse leakage the card cannot carry",
 }
 
 

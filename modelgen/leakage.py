@@ -12,15 +12,19 @@ gnucap 0.36 has no ISR, and SPICE3 has neither. A card therefore leaks IS
 This module measures that gap and closes it where a target allows: a
 behavioural current source beside the diode, inside a ``.subckt``,
 
-    I_gen(V) = -(IG (1 - min(V, 0) / VJ)^M - IE) (1 - exp(min(V, 0) / VG)),
+    I_gen(V) = -(IG (1 - min(V, 0) / VJ)^MG - IE) (1 - exp(min(V, 0) / VG)),
 
 zero in forward bias (where ISR carries the recombination current), with
 VG = 2 kT/q (the SNS generation law's (1 - exp(qV/2kT)) for a mid-gap trap)
-and VJ, M the card's own: the generating width is the depletion width
-W ~ (1 - V/VJ)^M less the slices at its edges where a carrier density is
-above ni, which change little with bias (IE). IG and IE are fitted, by linear
-least squares on the relative error, to what the physics gives beyond the
-card's own reverse current over the reverse biases of the fit window. Everything here is
+and VJ the card's own: the generating width is the depletion width, which
+grows as (1 - V/VJ)^M with the junction's grading M, less the slices at its
+edges where a carrier density is above ni, which change little with bias
+(IE); a graded side whose short-lifetime part depletes as the bias grows
+makes the current grow faster, so the exponent (MG, written in the place of
+M) is fitted too. IG and IE are fitted by linear least squares on the
+relative error for each MG of a fixed grid, and the MG with the smallest
+worst error is kept, against what the physics gives beyond the card's own
+reverse current over the reverse biases of the fit window. Everything here is
 vectorised over devices (rows) and biases (columns).
 """
 
@@ -78,7 +82,7 @@ class Generation:
     ----------
     IG : amplitude of the depletion-width term [A] (0: nothing to add).
     IE : the edge slices' share taken off [A].
-    M : the card's grading coefficient, the exponent of (1 - V/VJ).
+    M : the exponent of (1 - V/VJ), fitted (MG in the text).
     VJ : the card's junction potential [V].
     VG : 2 kT/q at the card's temperature [V].
     bias : the reverse biases fitted at [V] (one row for all devices).
@@ -110,7 +114,7 @@ class Generation:
 
 
 def source_current(ig, ie, m, vj, vg, v):
-    """I_gen(V) = -(IG (1 - min(V,0)/VJ)^M - IE) (1 - exp(min(V,0)/VG)) [A], zero for V >= 0.
+    """I_gen(V) = -(IG (1 - min(V,0)/VJ)^MG - IE) (1 - exp(min(V,0)/VG)) [A], zero for V >= 0.
 
     The generating width W(V) - W_edges of the module docstring, W(V)
     following the card's own depletion law. Arrays broadcast together.
@@ -138,14 +142,40 @@ def card_reverse_current(params, bias, temperature, simulator="ngspice"):
                                           np.asarray(bias, float)[None, :], vt[:, None], sim)
 
 
-def fit(bias, physics, card, vj, m, temperature):
-    """Fit IG and IE of the source to the leakage the card lacks, per device (vectorised).
+#: Exponents of (1 - V/VJ) the fit tries: from a nearly constant generating width to one that grows
+#: faster than any depletion law (a graded side whose short-lifetime part depletes as the bias grows).
+EXPONENTS = np.round(np.arange(0.05, 3.0001, 0.025), 6)
 
-    Minimises the sum over biases of (I_gen / excess - 1)^2, excess =
-    physics - card, which is linear in (IG, IE) and solved in closed form
-    (2 x 2 normal equations per device). A device whose card already leaks
-    as much as the physics everywhere gets IG = IE = 0; IE is kept between 0
-    and IG so the source never flows forward.
+
+def _amplitudes(y, f, g, use):
+    """IG, IE minimising sum (I_gen / y - 1)^2 for fixed exponent terms f (devices, biases), vectorised."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        a = np.where(use, f * g / y, 0.0)
+        b = np.where(use, -g / y, 0.0)
+    saa, sab, sbb = (a * a).sum(1), (a * b).sum(1), (b * b).sum(1)
+    sa, sb = a.sum(1), b.sum(1)
+    det = saa * sbb - sab * sab
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ok = det > 1e-12 * saa * sbb
+        ig = np.where(ok, (sa * sbb - sb * sab) / det, 0.0)
+        ie = np.where(ok, (sb * saa - sa * sab) / det, 0.0)
+        bad = ~((ie >= 0) & (ie <= ig))
+        # no edge term: one parameter, IG = sum(a) / sum(a^2)
+        ig = np.where(bad, np.where(saa > 0, sa / saa, 0.0), ig)
+    ie = np.where(bad, 0.0, ie)
+    return np.where(use.any(1), np.maximum(ig, 0.0), 0.0), ie
+
+
+def fit(bias, physics, card, vj, temperature):
+    """Fit IG, IE and MG of the source to the leakage the card lacks, per device (vectorised).
+
+    For each exponent MG of :data:`EXPONENTS`, IG and IE minimise the sum over
+    biases of (I_gen / excess - 1)^2, excess = physics - card, which is linear
+    in (IG, IE) and solved in closed form (2 x 2 normal equations per
+    device); each device keeps the exponent whose worst relative error of
+    card plus source against the physics is smallest. A device whose card
+    already leaks as much as the physics everywhere gets IG = IE = 0; IE is
+    kept between 0 and IG so the source never flows forward.
 
     Parameters
     ----------
@@ -153,8 +183,8 @@ def fit(bias, physics, card, vj, m, temperature):
         Reverse biases [V], (biases,).
     physics, card : array_like
         Physical and card currents [A], (devices, biases), negative.
-    vj, m : array_like
-        The card's VJ [V] and M, (devices,).
+    vj : array_like
+        The card's VJ [V], (devices,).
     temperature : array_like
         [K], (devices,).
 
@@ -166,30 +196,26 @@ def fit(bias, physics, card, vj, m, temperature):
     physics = np.asarray(physics, float)
     card = np.asarray(card, float)
     vj = np.asarray(vj, float)
-    m = np.asarray(m, float)
     vg = 2.0 * thermal_voltage(np.asarray(temperature, float))
     y = card - physics                                   # the missing leakage, positive where missing
     use = y > 0
     g = -np.expm1(bias / vg[:, None])
-    f = (1.0 - bias / vj[:, None]) ** m[:, None]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        a = np.where(use, f * g / y, 0.0)
-        b = np.where(use, -g / y, 0.0)
-    saa, sab, sbb = (a * a).sum(1), (a * b).sum(1), (b * b).sum(1)
-    sa, sb = a.sum(1), b.sum(1)
-    det = saa * sbb - sab * sab
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ig = np.where(det > 1e-12 * saa * sbb, (sa * sbb - sb * sab) / det, 0.0)
-        ie = np.where(det > 1e-12 * saa * sbb, (sb * saa - sa * sab) / det, 0.0)
-        bad = ~((ie >= 0) & (ie <= ig))
-        # no edge term: one parameter, IG = sum(a) / sum(a^2)
-        ig = np.where(bad, np.where(saa > 0, sa / saa, 0.0), ig)
-    ie = np.where(bad, 0.0, ie)
-    ig = np.where(use.any(1), np.maximum(ig, 0.0), 0.0)
-    total = card + source_current(ig[:, None], ie[:, None], m[:, None], vj[:, None], vg[:, None], bias)
-    worst = np.max(np.abs(total / physics - 1.0), axis=1)
-    return Generation(IG=ig, IE=ie, M=m, VJ=vj, VG=vg, bias=bias[0], physics=physics, card=card,
-                      worst_error=worst)
+    base = np.log1p(-bias / vj[:, None])                 # ln(1 - V/VJ)
+    n = len(vj)
+    best = np.full(n, np.inf)
+    ig = np.zeros(n)
+    ie = np.zeros(n)
+    mg = np.zeros(n)
+    for m in EXPONENTS:  # a fixed grid, the same for every device
+        f = np.exp(m * base)
+        a, e = _amplitudes(y, f, g, use)
+        total = card - (a[:, None] * f - e[:, None]) * g
+        worst = np.max(np.abs(total / physics - 1.0), axis=1)
+        better = worst < best
+        best = np.where(better, worst, best)
+        ig, ie, mg = np.where(better, a, ig), np.where(better, e, ie), np.where(better, m, mg)
+    return Generation(IG=ig, IE=ie, M=mg, VJ=vj, VG=vg, bias=bias[0], physics=physics, card=card,
+                      worst_error=best)
 
 
 def closed_physics(result, bias):
@@ -232,7 +258,7 @@ def closed_form(result, params, reverse_bias, simulator="ngspice"):
     bias = reverse_biases(reverse_bias)
     t = result.derived["temperature"]
     return fit(bias, closed_physics(result, bias), card_reverse_current(params, bias, t, simulator),
-               params["VJ"], params["M"], t)
+               params["VJ"], t)
 
 
 #: The fit window's reverse bias when a description gives none [V].
@@ -256,7 +282,7 @@ def header_lines(sources, against="the closed forms"):
         "subcircuit form: each card is a .subckt NAME a k holding the diode D1 and a behavioural source B1 for "
         "the depletion region's reverse generation current, which no level-1 diode carries (ngspice applies "
         "ISR only above -3 N Vt); use it as X1 anode cathode NAME",
-        f"B1 = -(IG (1 - V/VJ)^M - IE) (1 - exp(V/VG)) for V < 0, zero in forward bias; fitted from {lo:.3g} V "
+        f"B1 = -(IG (1 - V/VJ)^MG - IE) (1 - exp(V/VG)) for V < 0, zero in forward bias; fitted from {lo:.3g} V "
         f"to {hi:.3g} V against {against}, worst error {100 * worst:.2g} %; it holds at TNOM only "
         "(no temperature scaling)",
     )

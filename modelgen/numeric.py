@@ -48,7 +48,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.optimize import least_squares
 
-from . import structures, targets
+from . import leakage, structures, targets
 from .cards.render import card_values
 from .constants import thermal_voltage
 from .errors import InputError
@@ -295,8 +295,11 @@ def sweep(result, i, window=None, refine=1.0, structure=None):
 
     Forward biases are :data:`STEP_VT` thermal voltages apart (divided by
     ``refine``) from one step above 0 until the current passes the window's
-    top (or the terminal voltage its cap); the reverse I-V has six points
-    from -0.1 V to the window's reverse bias; the C-V twelve over the
+    top (or the terminal voltage its cap); the reverse I-V has -0.1 and
+    -0.25 V and the seven biases of :func:`modelgen.leakage.reverse_biases`
+    (from -0.5 V to the window's reverse bias, where the ``.subckt`` form's
+    source is fitted), or six points from -0.1 V when the window stops short
+    of -0.5 V; the C-V twelve over the
     capacitance range. Each forward point is put in a region:
     'recombination' (the depletion-region SRH at least
     :data:`RECOMBINATION_SHARE` of the current), 'high injection' (the
@@ -342,7 +345,10 @@ def sweep(result, i, window=None, refine=1.0, structure=None):
     step = STEP_VT * vt / float(refine)
     rc = float(np.nan_to_num(np.asarray(result.device.contact_resistance, float)[i]))
     mesh = driftdiffusion.make_mesh(s, refine=refine, reverse_to=min(window.reverse_bias, window.capacitance_low))
-    reverse = -np.geomspace(0.1, -window.reverse_bias, 6)
+    if window.reverse_bias <= leakage.NEAREST_BIAS:  # the leakage source's biases, and two nearer 0 V
+        reverse = np.concatenate([[-0.1, -0.25], leakage.reverse_biases(window.reverse_bias)])
+    else:
+        reverse = -np.geomspace(0.1, -window.reverse_bias, 6)
     cv = np.linspace(window.capacitance_low, window.capacitance_high, 12)
     guess = _voltage_at(_closed_card(result, i), window.current_high, window.voltage_cap)
     top = min(window.voltage_cap, guess + 6 * vt)
@@ -869,8 +875,10 @@ def _findings(sweep, fitted, target):
             f"voltage {bv:.3g} V: the solver has no impact ionisation, so its reverse current there is not "
             f"the device's"))
     if fitted.leakage > LEAKAGE_FACTOR * max(fitted.card_leakage, 1e-300):
-        extra = {"ngspice": "ngspice applies ISR in forward bias only",
-                 "gnucap": "gnucap's diode has no ISR"}.get(sim.name, "")
+        extra = (f"{sim.name}'s diode applies ISR in forward bias only" if sim.recombination
+                 else f"{sim.name}'s diode has no ISR")
+        if target.leakage_template is not None:
+            extra += "; --form subckt adds a source for it"
         found.append(Message(
             "warning", "numeric-leakage",
             f"reverse leakage: at {w.reverse_bias:g} V the physics gives {_si(fitted.leakage, 'A')} "
@@ -918,3 +926,100 @@ def _resistance_finding(sweep, fitted, sim):
         f"series resistance: {why}, the card's constant RS = {rs:.3g} ohm departs from it by up to "
         f"{100 * departure.max():.3g} %: at {_si(i[k], 'A')} the card gives {vcard[k]:.3g} V, the physics "
         f"{v[k]:.3g} V (the closed-form card {vclosed:.3g} V)")]
+
+
+# --------------------------------------------------------------------------- cards and documents
+
+
+def generation_source(sweep, fitted):
+    """The ``.subckt`` form's generation source fitted to the solver's reverse current
+    (:func:`modelgen.leakage.fit` over the sweep's reverse points from -0.5 V on).
+
+    Raises
+    ------
+    ValueError
+        The window's reverse bias does not reach :data:`modelgen.leakage.NEAREST_BIAS`.
+    """
+    use = sweep.reverse_bias <= leakage.NEAREST_BIAS
+    if use.sum() < 2:
+        raise ValueError(f"the generation source needs a fit window reaching {leakage.NEAREST_BIAS:g} V or "
+                         f"beyond in reverse, not {sweep.window.reverse_bias:g} V")
+    bias = sweep.reverse_bias[use]
+    card = {k: np.array([v]) for k, v in fitted.card.items()}
+    t = np.array([sweep.temperature])
+    sim = targets.get(fitted.dialect).equations
+    return leakage.fit(bias, sweep.reverse_current[use][None, :],
+                       leakage.card_reverse_current(card, bias, t, sim), card["VJ"], t)
+
+
+def card_result(result, i, fitted):
+    """Row ``i`` of ``result`` as a one-device Result whose findings include the fit's.
+
+    Render it with ``overrides=fitted.params`` (:func:`modelgen.cards.card`).
+    """
+    from .extraction import Finding
+
+    sub = result.take([int(i)])
+    extra = [Finding(np.array([True]), m.text.replace("{", "{{").replace("}", "}}"), severity=m.severity,
+                     kind=m.kind) for m in fitted.findings]
+    sub.findings = list(sub.findings) + extra
+    return sub
+
+
+def header_lines(sweep, fitted):
+    """The file-header line of a fitted card: what physics, how many points, whose equations.
+
+    The window and the worst error per region are in the card's own note (kind ``numeric-fit``).
+    """
+    return (f"physics: numerical (1-D drift-diffusion solver, {len(sweep.forward_bias)} forward, "
+            f"{len(sweep.reverse_bias)} reverse, {len(sweep.cv_bias)} C-V points); the card is fitted to it in "
+            f"the {targets.get(fitted.dialect).equations} equations (its note gives the window and the worst "
+            "error per region, of the fitted and of the closed-form card)",)
+
+
+def window_document(w):
+    """The window as plain data (SI)."""
+    return {"current_low": w.current_low, "current_high": w.current_high, "voltage_cap": w.voltage_cap,
+            "reverse_bias": w.reverse_bias, "capacitance_low": w.capacitance_low,
+            "capacitance_high": w.capacitance_high}
+
+
+def fit_document(sweep, fitted):
+    """What a fitted card's JSON adds: physics, window, errors per region of both cards, leakage (SI)."""
+    return {"physics": "numeric", "window": window_document(sweep.window),
+            "errors": dict(fitted.errors), "closed_form_errors": dict(fitted.closed_errors),
+            "leakage": fitted.leakage, "card_leakage": fitted.card_leakage,
+            "findings": [{"severity": m.severity, "kind": m.kind, "text": m.text} for m in fitted.findings]}
+
+
+def solve_document(name, sweep, fitted):
+    """``modelgen solve``'s JSON: the physics' curves, the mechanisms, and each card's error (SI)."""
+    return {
+        "name": name, "dialect": fitted.dialect, "window": window_document(sweep.window),
+        "forward": {"V": sweep.forward_bias, "I": sweep.forward_current, "region": list(sweep.region),
+                    "in_window": sweep.in_window, "stored_charge": sweep.stored_charge},
+        "reverse": {"V": sweep.reverse_bias, "I": sweep.reverse_current},
+        "capacitance": {"V": sweep.cv_bias, "C": sweep.capacitance},
+        "components": {k: np.asarray(v) for k, v in sweep.components.items()},
+        "card_error": {"closed": dict(fitted.closed_errors), "fitted": dict(fitted.errors)},
+        "cards": {"closed": dict(fitted.closed_card), "fitted": dict(fitted.card)},
+        "leakage": fitted.leakage,
+        "units": {"V": "V", "I": "A", "C": "F", "stored_charge": "C", "components": "A", "card_error": "1",
+                  "leakage": "A"},
+    }
+
+
+def solve_table(sweep, fitted):
+    """``modelgen solve``'s text table: bias, region, physics, the closed-form and the fitted card, errors."""
+    t = comparison(sweep, {"closed": fitted.closed_card, "fitted": fitted.card}, fitted.dialect)
+    head = ("V [V]", "region", "physics [A]", "closed card [A]", "error", "fitted card [A]", "error")
+    rows = [head] + [(f"{r[0]:.4f}", r[1], f"{r[2]:.4e}", f"{r[3]:.4e}", f"{100 * r[4]:.2f} %", f"{r[5]:.4e}",
+                      f"{100 * r[6]:.2f} %") for r in t.rows]
+    widths = [max(len(r[k]) for r in rows) for k in range(len(head))]
+    lines = ["  ".join(c.rjust(widths[k]) if k != 1 else c.ljust(widths[k]) for k, c in enumerate(r)).rstrip()
+             for r in rows]
+    order = [r for r in (*FORWARD_REGIONS, "reverse", "capacitance") if r in fitted.errors]
+    lines.append("")
+    lines.append("worst error by region: " + "; ".join(
+        f"{r}: closed {100 * fitted.closed_errors[r]:.3g} %, fitted {100 * fitted.errors[r]:.3g} %" for r in order))
+    return "\n".join(lines) + "\n"

@@ -29,7 +29,7 @@ import numpy as np
 import pytest
 from scipy import constants as sc
 
-from modelgen import cards, description, extraction, numeric
+from modelgen import cards, description, extraction, leakage, numeric
 from modelgen.cards import reader
 from modelgen.errors import InputError
 
@@ -329,7 +329,7 @@ def test_solver_failure_high_up_ends_the_sweep_there(fitted, monkeypatch):
     monkeypatch.setattr(driftdiffusion, "solve", failing)
     sw = numeric.sweep(r, 0)
     assert sw.stopped == "solver" and sw.forward_bias.max() <= 0.6
-    assert len(sw.reverse_bias) == 6 and len(sw.cv_bias) == 12
+    assert len(sw.reverse_bias) == 2 + leakage.POINTS and len(sw.cv_bias) == 12
     f = numeric.fit(r, 0, sw, "ngspice")
     assert [m for m in f.findings if m.kind == "numeric-window" and m.severity == "warning"]
 
