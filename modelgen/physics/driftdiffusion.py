@@ -96,6 +96,11 @@ class Structure:
     features : tuple of float
         Positions where the mesh is graded finely besides the junctions
         (depletion edges) [m].
+    contact_resistance : float
+        Series resistance of the contacts and leads outside the 1-D device
+        [ohm] (default 0); enters only :attr:`Solution.terminal_bias`. The
+        neutral regions' own resistance, conductivity modulation included, is
+        already in the solution.
     """
 
     profile: _profiles.Profile
@@ -113,12 +118,23 @@ class Structure:
     auger_n: float = silicon.AUGER_CN
     auger_p: float = silicon.AUGER_CP
     features: tuple = ()
+    contact_resistance: float = 0.0
 
 
 def _piecewise(xj, left, right):
     """x -> left for x < xj, right beyond (scalars)."""
     left, right = float(left), float(right)
     return lambda x: np.where(np.asarray(x) < xj, left, right)
+
+
+def _three_regions(x0, x1, left, middle, right):
+    """x -> left for x < x0, middle for x0 <= x <= x1, right beyond (scalars)."""
+    left, middle, right = float(left), float(middle), float(right)
+
+    def f(x):
+        x = np.asarray(x)
+        return np.where(x < x0, left, np.where(x <= x1, middle, right))
+    return f
 
 
 def _srh_part(tau, auger, majority):
@@ -139,11 +155,22 @@ def structure_from_result(result, i, auger=True):
     the closed forms' mobilities (electrons in the p side with the p side's
     minority mobility, in the n side with the n side's majority mobility;
     holes alike), ni, each side's band-gap narrowing, temperature, junction
-    area (bottom plus sidewall) and contact velocities. Each side's lifetime
-    is the closed forms' minority-carrier lifetime: with ``auger`` the SRH
+    area (bottom plus sidewall), contact velocities and the contact resistance
+    (``contact_resistance``, NaN or absent = 0). Each side's neutral region
+    has the closed forms' minority-carrier lifetime: with ``auger`` the SRH
     lifetime is reduced so that SRH and Auger together give it at low
     injection (1/tau_SRH = 1/tau - C N^2), the same lifetime used for both
     carriers on that side.
+
+    The depletion region has the closed forms' recombination lifetime
+    (``derived["recombination_lifetime"]``: the user's
+    ``recombination_lifetime``, default the lighter side's lifetime) as the
+    SRH lifetime of both carriers, the lifetime of their Sah-Noyce-Shockley
+    current. Its extent is the one the closed forms use to separate depletion
+    from neutral regions: the depletion extents at the reference bias on each
+    side (thickness less neutral width), so that every point of the device
+    has the lifetime the closed forms give it. Auger is not taken out of it
+    (the carriers there are far below the doping).
 
     Parameters
     ----------
@@ -175,8 +202,12 @@ def structure_from_result(result, i, auger=True):
     cn, cp = (silicon.AUGER_CN, silicon.AUGER_CP) if auger else (0.0, 0.0)
     tau_p_side = _srh_part(float(p["lifetime"][i]), cp, na)
     tau_n_side = _srh_part(float(n["lifetime"][i]), cn, nd)
-    tau = _piecewise(xj, tau_p_side, tau_n_side)
-    features = (xj - float(p["depletion_extent"][i]), xj + float(n["depletion_extent"][i]))
+    # the depletion region at the reference bias: the closed forms' neutral regions begin at its edges
+    x_lo = xj - (tp - float(p["neutral_width"][i]))
+    x_hi = xj + (tn - float(n["neutral_width"][i]))
+    tau = _three_regions(x_lo, x_hi, tau_p_side, float(d["recombination_lifetime"][i]), tau_n_side)
+    features = (xj - float(p["depletion_extent"][i]), xj + float(n["depletion_extent"][i]), x_lo, x_hi)
+    rc = float(getattr(dev, "contact_resistance", np.full(i + 1, np.nan))[i])
     return Structure(
         profile=prof, temperature=float(d["temperature"][i]), ni=float(d["ni"][i]),
         permittivity=float(dev.relative_permittivity[i]) * EPS0, area=float(d["junction_area"][i]),
@@ -185,7 +216,8 @@ def structure_from_result(result, i, auger=True):
         electron_lifetime=tau, hole_lifetime=tau,
         bandgap_narrowing=_piecewise(xj, p["bandgap_narrowing"][i], n["bandgap_narrowing"][i]),
         velocity_p=float(p["contact_velocity"][i]), velocity_n=float(n["contact_velocity"][i]),
-        auger_n=cn, auger_p=cp, features=features)
+        auger_n=cn, auger_p=cp, features=tuple(sorted(set(features))),
+        contact_resistance=rc if np.isfinite(rc) else 0.0)
 
 
 def structure_from_profile(profile, area, temperature=300.0, lifetimes=None, velocities=(np.inf, np.inf),
@@ -706,6 +738,10 @@ class Solution:
     psi, n, p : potential [V] and densities [m^-3] on the mesh, (biases, nodes).
     iterations : Newton iterations spent per bias (continuation steps included).
     mesh : the Mesh.
+    terminal_bias : bias at the device's leads [V], bias + current * contact_resistance
+        (:attr:`Structure.contact_resistance`; the neutral regions' resistance, conductivity
+        modulation included, is already inside ``bias``): the voltage to set against a
+        measured or simulated I-V whose series resistance includes the contacts.
     """
 
     bias: np.ndarray
@@ -723,6 +759,7 @@ class Solution:
     p: np.ndarray
     iterations: np.ndarray
     mesh: Mesh
+    terminal_bias: np.ndarray | None = None
 
 
 def _observe(m, u, bias, capacitance):
@@ -860,4 +897,5 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
                     peak_field=res["field"], stored_charge=res["stored"], depletion_charge=res["qdep"],
                     capacitance=np.where(want_c, res["cap"], np.nan),
                     junction_current_density=res["jj"], junction_voltage=res["vj"], psi=res["psi"], n=res["n"],
-                    p=res["p"], iterations=res["it"], mesh=m)
+                    p=res["p"], iterations=res["it"], mesh=m,
+                    terminal_bias=v + res["j"] * area * float(structure.contact_resistance))
