@@ -404,3 +404,39 @@ def test_profile_table_rejects_bad_input():
         profiles.table([1e-6, 2e-6], [-1e22, 1e22])
     with pytest.raises(ValueError, match="negative"):
         profiles.table([0.0, 2e-6], [1e22, 1e22])
+
+
+# ----------------------------------------------------------------------------- degeneracy
+
+
+def test_fermi_dirac_integral_and_degeneracy_limit_against_quadrature():
+    """F_1/2 against its defining integral (2/sqrt(pi)) int sqrt(e)/(1 + exp(e - eta)) de by scipy
+    quad (Blakemore, Solid-State Electron. 25, 1067 (1982)); the limit density, where Boltzmann's
+    exp(eta) exceeds F_1/2 by 5 %, against the same quadrature and scipy brentq; and the first-order
+    form exp(eta*) ~ 2^(3/2) * 0.05 (the leading term of the series, Blakemore 1982) within 5 %."""
+    from scipy import optimize, special
+
+    def f_half(eta):
+        val, _ = integrate.quad(lambda e: np.sqrt(e) * special.expit(eta - e), 0.0, np.inf, epsabs=0, epsrel=1e-12)
+        return 2.0 / np.sqrt(np.pi) * val
+
+    for eta in (-8.0, -3.0, -1.0):
+        assert dd.fermi_dirac_half(eta) == pytest.approx(f_half(eta), rel=1e-8)
+    eta_star = optimize.brentq(lambda e: np.exp(e) / f_half(e) - 1.05, -10.0, 0.0, xtol=1e-12)
+    assert dd.degeneracy_limit(1.0) == pytest.approx(f_half(eta_star), rel=1e-6)
+    assert np.exp(eta_star) == pytest.approx(2**1.5 * 0.05, rel=5e-2)
+
+
+@pytest.mark.parametrize("na_cm3, warns", [(1e20, True), (1e17, False)])
+def test_degenerate_side_is_reported(na_cm3, warns):
+    """A 1e20 cm^-3 p side is degenerate (Sze & Ng 2007, sec. 1.4.1: silicon degenerates above a few
+    1e18 to 1e19 cm^-3; Nv = 3.1e19 cm^-3, Green 1990, from memory): the solution says so in one line
+    naming the holes; a 1e17 cm^-3 side is not."""
+    s = dd.structure_from_profile(profiles.abrupt(na_cm3 * 1e6, 1e22, 2e-6, 20e-6), area=1e-8,
+                                  lifetimes=(1e-8, 1e-6))
+    text = dd.solve(s, [0.0], capacitance=False).degenerate
+    if warns:
+        assert text.startswith("degenerate:") and "hole density reaches 1e+20 cm^-3" in text
+        assert "electron" not in text and "\n" not in text
+    else:
+        assert text == ""

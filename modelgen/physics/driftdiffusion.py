@@ -761,6 +761,12 @@ class Solution:
     mesh: Mesh
     terminal_bias: np.ndarray | None = None
 
+    @property
+    def degenerate(self):
+        """Plain-text warning where the equilibrium densities are degenerate, else '' (see
+        :func:`degeneracy_warning`; silicon's effective densities of states)."""
+        return degeneracy_warning(self.mesh)
+
 
 def _observe(m, u, bias, capacitance):
     """Terminal current, mechanism split, field, charges (and dQ/dV) of one converged state (SI)."""
@@ -899,3 +905,127 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
                     junction_current_density=res["jj"], junction_voltage=res["vj"], psi=res["psi"], n=res["n"],
                     p=res["p"], iterations=res["it"], mesh=m,
                     terminal_bias=v + res["j"] * area * float(structure.contact_resistance))
+
+
+# --------------------------------------------------------------------------- degeneracy
+
+#: Largest overstatement of the density by Boltzmann statistics the solver's results accept [-].
+DEGENERACY_ERROR = 0.05
+
+
+def fermi_dirac_half(eta, terms=60):
+    """The Fermi-Dirac integral F_1/2(eta) for eta <= 0, normalised so that n = Nc F_1/2(eta_F).
+
+    F_1/2(eta) = (2/sqrt(pi)) integral_0^inf sqrt(e) / (1 + exp(e - eta)) de
+    = sum_k (-1)^(k+1) exp(k eta) / k^(3/2), the alternating series, which
+    converges for eta <= 0 (and tends to exp(eta), Boltzmann, for eta -> -inf).
+
+    Parameters
+    ----------
+    eta : array_like
+        Reduced Fermi level (E_F - E_c) / kT [-], at most -1 (non-degenerate to
+        weakly degenerate); larger values are clipped to -1 (the series slows
+        down towards 0).
+    terms : int
+        Terms of the series; 60 gives the sum to 1e-12 at eta = -1 and better below.
+
+    Returns
+    -------
+    numpy.ndarray
+        F_1/2(eta) [-].
+
+    References
+    ----------
+    J. S. Blakemore, "Approximations for Fermi-Dirac integrals, especially the
+    function F_1/2(eta) used to describe electron density in a semiconductor",
+    Solid-State Electron. 25, 1067 (1982).
+    """
+    x = np.exp(np.minimum(np.asarray(eta, float), -1.0))[..., None]
+    k = np.arange(1, terms + 1)
+    return np.sum((-1.0) ** (k + 1) * x**k / k**1.5, axis=-1)
+
+
+def degeneracy_limit(effective_density, error=DEGENERACY_ERROR):
+    """The carrier density above which Boltzmann statistics overstate it by more than ``error``.
+
+    At a Fermi level eta, Boltzmann gives Nc exp(eta) where Fermi-Dirac
+    gives Nc F_1/2(eta); the limit is Nc F_1/2(eta*) with
+    exp(eta*) / F_1/2(eta*) = 1 + error (found by bisection; for 5 % it is
+    0.138 Nc, eta* = -1.93; to first order exp(eta*) = 2^(3/2) error).
+
+    Parameters
+    ----------
+    effective_density : array_like
+        Nc or Nv [m^-3].
+    error : float
+        Accepted relative overstatement [-], between 1e-6 and 0.1 (eta* below -1).
+
+    Returns
+    -------
+    numpy.ndarray
+        [m^-3].
+
+    References
+    ----------
+    Blakemore, Solid-State Electron. 25, 1067 (1982) (F_1/2 and its series);
+    Sze & Ng, *Physics of Semiconductor Devices*, 3rd ed. (2007), sec. 1.4.1
+    (n = Nc F_1/2, Boltzmann's limit).
+    """
+    lo, hi = -20.0, -1.0
+    for _ in range(80):
+        mid = 0.5 * (lo + hi)
+        if np.exp(mid) / fermi_dirac_half(mid) > 1.0 + error:
+            hi = mid
+        else:
+            lo = mid
+    return np.asarray(effective_density, float) * fermi_dirac_half(lo)
+
+
+def degeneracy_warning(mesh, material=silicon, error=DEGENERACY_ERROR):
+    """A plain-text warning where the equilibrium electron or hole density is degenerate, else ''.
+
+    The solver uses Boltzmann statistics. Where the equilibrium density of a
+    carrier exceeds :func:`degeneracy_limit` of the band's effective density
+    of states (``material.effective_density_of_states`` at the structure's
+    temperature), Boltzmann overstates the density at a given Fermi level by
+    more than ``error`` (5 %: 0.138 Nc, 3.95e18 cm^-3 for electrons and
+    4.29e18 cm^-3 for holes in silicon at 300 K with Green's (1990) Nc, Nv).
+    The apparent band-gap narrowing the solver uses carries part of the
+    effect on n p; the currents and the charge of such a region remain
+    estimates.
+
+    Parameters
+    ----------
+    mesh : Mesh
+        With its equilibrium solved (:func:`equilibrium`; :func:`solve` does it).
+    material : module
+        A :mod:`modelgen.materials` module.
+    error : float
+        Accepted relative overstatement [-].
+
+    Returns
+    -------
+    str
+        '' when both densities stay below their limits.
+
+    References
+    ----------
+    Blakemore, Solid-State Electron. 25, 1067 (1982); Sze & Ng (2007), sec. 1.4.1.
+    """
+    if mesh.equilibrium is None:
+        equilibrium(mesh)
+    u = mesh.equilibrium
+    nc, nv = material.effective_density_of_states(mesh.structure.temperature)
+    parts = []
+    for name, col, dos in (("electron", 1, nc), ("hole", 2, nv)):
+        dens = np.exp(u[:, col]) * mesh.c0
+        limit = float(degeneracy_limit(dos, error))
+        k = int(np.argmax(dens))
+        if dens[k] > limit:
+            parts.append(f"the equilibrium {name} density reaches {dens[k] / 1e6:.3g} cm^-3 "
+                         f"(from {mesh.x[k] * 1e6:.4g} um), above {limit / 1e6:.3g} cm^-3")
+    if not parts:
+        return ""
+    return ("degenerate: " + "; ".join(parts) + f", where Boltzmann statistics overstate the density by more "
+            f"than {100 * error:g} % (Fermi-Dirac integral F_1/2); the solver's results for that region are "
+            "estimates")
