@@ -440,3 +440,56 @@ def test_degenerate_side_is_reported(na_cm3, warns):
         assert "electron" not in text and "\n" not in text
     else:
         assert text == ""
+
+
+# ----------------------------------------------------------------------------- avalanche breakdown
+
+
+def one_sided(nd_cm3, tn_um):
+    table = {"name": "DBV", "area": "1e-4 cm^2",
+             "p": {"doping": "1e19 cm^-3", "thickness": "1 um", "lifetime": "10 ns"},
+             "n": {"doping": f"{nd_cm3:g} cm^-3", "thickness": f"{tn_um} um", "lifetime": "1 us"}}
+    return extraction.derive(description.from_mapping(table))
+
+
+@pytest.mark.parametrize("nd_cm3, tn_um", [(1e16, 15), (1e17, 5)])
+def test_breakdown_over_the_solver_field_matches_the_depletion_approximation(nd_cm3, tn_um):
+    """A p+ n abrupt junction (1e19 on 1e16 or 1e17 cm^-3, the n side thicker than its depletion region at
+    breakdown): the reverse bias where the ionization integral over the solver's field reaches 1
+    within 2 % of the closed form's BV, the same integral over the depletion approximation's field
+    (Sze & Ng 2007, sec. 2.4.3; same coefficients, van Overstraeten & de Man 1970), and the
+    integral there is 1."""
+    r = one_sided(nd_cm3, tn_um)
+    assert not r.derived["reach_through"][0]
+    b = dd.breakdown_bias(dd.structure_from_result(r, 0))
+    assert b.integral == pytest.approx(1.0, rel=1e-4)
+    assert -b.bias == pytest.approx(r.params["BV"][0], rel=2e-2)
+    assert dd.ionization_integrals(b.solution)[0] == pytest.approx(b.integral, rel=1e-12)
+
+
+def test_breakdown_of_a_one_sided_junction_against_published_values():
+    """1e16 cm^-3 one-sided abrupt silicon junction: about 60 V in Sze & Ng 2007, ch. 2 (figure of
+    BV against background doping, and BV = 60 (Eg/1.1)^1.5 (N/1e16)^-3/4 V), 53 V from Baliga's
+    BV = 5.34e13 N^-3/4 (*Fundamentals of Power Semiconductor Devices*, 2008, ch. 3); both from
+    memory. Allowed: 15 % of the first (a figure's reading, older ionization coefficients) and 10 %
+    of the second."""
+    b = dd.breakdown_bias(dd.structure_from_result(one_sided(1e16, 15), 0))
+    assert -b.bias == pytest.approx(60.0, rel=0.15)
+    assert -b.bias == pytest.approx(53.4, rel=0.10)
+    assert 2.5e7 < b.peak_field < 5e7  # about 4e5 V/cm at 1e16 cm^-3 (Sze & Ng 2007, critical-field figure)
+
+
+def test_breakdown_refuses_a_forward_start():
+    """The search starts in reverse bias (common practice)."""
+    r = one_sided(1e16, 15)
+    with pytest.raises(ValueError, match="reverse"):
+        dd.breakdown_bias(dd.structure_from_result(r, 0), start=0.5)
+
+
+def test_a_singular_newton_step_is_a_failed_step():
+    """p+ n at 1e17 cm^-3 to -2 V: an early iterate left a singular Jacobian (LAPACK's error escaped);
+    it is now a failed step that is halved, and the depletion capacitance at -2 V is then the
+    abrupt junction's eps A / W within 1 % (Sze & Ng 2007, sec. 2.2-2.3)."""
+    r = one_sided(1e17, 5)
+    sol = dd.solve(dd.structure_from_result(r, 0), [-2.0])
+    assert sol.capacitance[0] == pytest.approx(closed_c(r, -2.0), rel=1e-2)

@@ -57,6 +57,7 @@ from scipy.linalg import solve_banded
 
 from ..constants import EPS0, Q, thermal_voltage
 from ..materials import silicon
+from . import breakdown as _breakdown
 from . import profiles as _profiles
 
 _BAND = 5  # half-bandwidth of the interleaved (psi, ln n, ln p) Jacobian
@@ -652,7 +653,10 @@ def _newton(m, u, bias, tol=1e-9, maxit=40):
     last = np.inf
     for it in range(1, maxit + 1):
         F, ab = _system(m, u, bias)
-        du = solve_banded((_BAND, _BAND), ab, -F, overwrite_ab=True, overwrite_b=True, check_finite=False)
+        try:
+            du = solve_banded((_BAND, _BAND), ab, -F, overwrite_ab=True, overwrite_b=True, check_finite=False)
+        except np.linalg.LinAlgError:  # an iterate so far off that a density underflowed: a failed step
+            return None, it
         if not np.all(np.isfinite(du)):
             return None, it
         big = np.abs(du) > 1.0
@@ -1029,3 +1033,168 @@ def degeneracy_warning(mesh, material=silicon, error=DEGENERACY_ERROR):
     return ("degenerate: " + "; ".join(parts) + f", where Boltzmann statistics overstate the density by more "
             f"than {100 * error:g} % (Fermi-Dirac integral F_1/2); the solver's results for that region are "
             "estimates")
+
+
+# --------------------------------------------------------------------------- avalanche breakdown
+
+
+def ionization_integrals(solution, material=silicon):
+    """Hole-initiated ionization integral over the solver's field, at each bias of a solution [-].
+
+    The field is the electrostatic one, |d psi / dx| on each mesh edge (the
+    Scharfetter-Gummel field is constant along an edge), placed at the edge
+    midpoints and integrated from the n contact towards the p contact with
+    :func:`modelgen.physics.breakdown.ionization_integral` (trapezoidal rule)
+    and the material's ionization coefficients. Avalanche breakdown is where
+    it reaches 1 (Sze & Ng 2007, sec. 2.4.3).
+
+    Parameters
+    ----------
+    solution : Solution
+    material : module
+        A :mod:`modelgen.materials` module (``ionization_coefficients``).
+
+    Returns
+    -------
+    numpy.ndarray
+        The integral at each bias [-]; near 0 in forward bias.
+
+    Notes
+    -----
+    The solver has no impact ionisation of its own: the integral is taken
+    over the field of the solution without multiplication, as the closed
+    form takes it over the depletion approximation's field. Breakdown figures
+    are estimates to be derated and confirmed on measured devices.
+
+    References
+    ----------
+    Sze & Ng, *Physics of Semiconductor Devices*, 3rd ed. (2007), sec. 2.4.3.
+    """
+    m = solution.mesh
+    field = np.abs(np.diff(solution.psi, axis=1)) / np.diff(m.x)
+    y = m.x[-1] - 0.5 * (m.x[1:] + m.x[:-1])  # from the n contact
+    field = field[:, ::-1]
+    y = np.broadcast_to(y[::-1], field.shape)
+    with np.errstate(divide="ignore"):
+        return _breakdown.ionization_integral(y, field, np.full(len(field), m.structure.temperature),
+                                              material.ionization_coefficients)
+
+
+@dataclass
+class Breakdown:
+    """The avalanche breakdown found by :func:`breakdown_bias`.
+
+    Attributes
+    ----------
+    bias : applied bias at breakdown [V] (negative: reverse).
+    integral : the ionization integral there [-] (1 within the tolerance).
+    peak_field : largest |E| there [V/m].
+    evaluations : solver runs spent.
+    solution : the Solution at ``bias``.
+    """
+
+    bias: float
+    integral: float
+    peak_field: float
+    evaluations: int
+    solution: Solution
+
+
+def breakdown_bias(structure, material=silicon, start=-1.0, limit=-1e4, rtol=1e-5, refine=1.0, maxiter=60):
+    """The reverse bias where the ionization integral over the solver's field reaches 1.
+
+    The bias is doubled from ``start`` until the integral passes 1; the
+    bracket is then solved on one mesh (graded for its reverse end) by
+    regula falsi (Illinois) on ln I against ln |V|, until ln I is within
+    ``rtol`` of 0 or the bracket within ``rtol`` (relative).
+
+    Parameters
+    ----------
+    structure : Structure
+    material : module
+        Supplies the ionization coefficients.
+    start : float
+        First reverse bias tried [V], < 0.
+    limit : float
+        Most reverse bias tried [V].
+    rtol : float
+        Tolerance on ln I and on the bracket [-].
+    refine : float
+        Mesh density multiplier (see :func:`make_mesh`).
+    maxiter : int
+        Regula-falsi steps at most.
+
+    Returns
+    -------
+    Breakdown
+
+    Raises
+    ------
+    SolverError
+        No breakdown up to ``limit``, or the solver failed.
+
+    Notes
+    -----
+    Avalanche breakdown only (above about 6 Eg/q; tunnelling dominates below
+    4 Eg/q, Sze & Ng 2007, sec. 2.4.3); the field is the steady-state field
+    without multiplication or self-heating. An estimate: derate it and confirm
+    it on measured devices.
+
+    References
+    ----------
+    Sze & Ng (2007), sec. 2.4.3; ionization coefficients of the material.
+    """
+    runs = 0
+
+    def evaluate(v, mesh):
+        nonlocal runs
+        runs += 1
+        sol = solve(structure, [v], mesh=mesh, capacitance=False)
+        return float(ionization_integrals(sol, material)[0]), sol
+
+    v_lo, v = None, float(start)
+    if not v < 0:
+        raise ValueError("breakdown_bias: start must be a reverse (negative) bias")
+    while True:
+        i, _ = evaluate(v, make_mesh(structure, refine=refine, reverse_to=v))
+        if i >= 1.0:
+            break
+        v_lo = v
+        if v <= limit:
+            raise SolverError(f"no avalanche breakdown up to {limit:g} V")
+        v = max(2.0 * v, limit)
+    mesh = make_mesh(structure, refine=refine, reverse_to=v)
+    v_hi = v
+    v_lo = v_hi / 2.0 if v_lo is None else v_lo
+
+    def g(v):
+        i, sol = evaluate(v, mesh)
+        return np.log(max(i, 1e-300)), i, sol
+
+    g_lo, g_hi = g(v_lo)[0], g(v_hi)[0]
+    if not g_lo < 0 <= g_hi:  # the finer mesh moved the root out of the bracket: widen once
+        v_lo, v_hi = v_lo / 2.0, min(2.0 * v_hi, limit) if v_hi > limit else v_hi
+        g_lo, g_hi = g(v_lo)[0], g(v_hi)[0]
+        if not g_lo < 0 <= g_hi:
+            raise SolverError("breakdown_bias: the ionization integral does not cross 1 monotonically")
+    a, b = np.log(-v_lo), np.log(-v_hi)
+    side = 0
+    for _ in range(maxiter):
+        c = b - g_hi * (b - a) / (g_hi - g_lo)
+        gc, ic, sol = g(-np.exp(c))
+        if abs(gc) < rtol or abs(b - a) < rtol:
+            break
+        if gc < 0:
+            a, g_lo = c, gc
+            if side == -1:
+                g_hi *= 0.5
+            side = -1
+        else:
+            b, g_hi = c, gc
+            if side == 1:
+                g_lo *= 0.5
+            side = 1
+    else:
+        raise SolverError("breakdown_bias: no convergence of the breakdown bias")
+    return Breakdown(bias=float(sol.bias[0]), integral=ic, peak_field=float(sol.peak_field[0]), evaluations=runs,
+                     solution=sol)
