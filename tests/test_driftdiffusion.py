@@ -493,3 +493,40 @@ def test_a_singular_newton_step_is_a_failed_step():
     r = one_sided(1e17, 5)
     sol = dd.solve(dd.structure_from_result(r, 0), [-2.0])
     assert sol.capacitance[0] == pytest.approx(closed_c(r, -2.0), rel=1e-2)
+
+
+# ----------------------------------------------------------------------------- batched solver
+
+
+def test_solve_many_gives_the_bytes_of_solve_for_each_device():
+    """Five devices of different mesh sizes (the four examples and a tabulated erfc emitter) solved
+    together equal each solved alone, array for array, in either order (the contract of solve_many:
+    one code path for one device and many, the same bytes; common practice)."""
+    from support import ROOT
+
+    structures = [dd.structure_from_result(extraction.derive(description.load(ROOT / "examples" / f"{e}.toml")), 0)
+                  for e in EXAMPLES]
+    prof = profiles.erfc_emitter(1e20 * 1e6, 0.05e-6, 1e15 * 1e6, 30e-6)
+    structures.append(dd.structure_from_profile(prof, area=1e-8, lifetimes=(1e-7, 1e-6)))
+    v = np.concatenate([np.linspace(0.0, 0.8, 9), [-0.5, -3.0, -8.0]])
+    want_c = v < 0.2
+    alone = [dd.solve(s, v, capacitance=want_c) for s in structures]
+    assert len({len(s.mesh.x) for s in alone}) > 1
+    for order in (slice(None), slice(None, None, -1)):
+        many = dd.solve_many(structures[order], v, capacitance=want_c)
+        for a, b in zip(alone[order], many):
+            for key in ("current", "current_density", "capacitance", "peak_field", "stored_charge",
+                        "depletion_charge", "junction_voltage", "psi", "n", "p", "iterations", "terminal_bias"):
+                assert np.array_equal(getattr(a, key), getattr(b, key), equal_nan=True), key
+            for key in a.components:
+                assert np.array_equal(a.components[key], b.components[key]), key
+
+
+def test_solve_many_takes_a_bias_list_per_device():
+    """Per-device bias lists: each device gets its own biases, in its own order (common practice)."""
+    r = derive(20, 50, 1)
+    s = dd.structure_from_result(r, 0)
+    a, b = dd.solve_many([s, s], [[0.3, -1.0], [0.1]], capacitance=False)
+    assert np.array_equal(a.bias, [0.3, -1.0]) and np.array_equal(b.bias, [0.1])
+    assert np.array_equal(a.current, dd.solve(s, [0.3, -1.0], capacitance=False).current)
+    assert np.array_equal(b.current, dd.solve(s, [0.1], capacitance=False).current)

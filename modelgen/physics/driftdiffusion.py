@@ -53,7 +53,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.linalg import solve_banded
+from scipy.linalg.lapack import dgbsv as _gbsv
 
 from ..constants import EPS0, Q, thermal_voltage
 from ..materials import silicon
@@ -61,6 +61,8 @@ from . import breakdown as _breakdown
 from . import profiles as _profiles
 
 _BAND = 5  # half-bandwidth of the interleaved (psi, ln n, ln p) Jacobian
+_DIAG = 2 * _BAND  # row of the diagonal in LAPACK's band storage for ?gbsv (kl rows for the fill-in on top)
+_LDAB = 3 * _BAND + 1
 
 
 class SolverError(RuntimeError):
@@ -299,8 +301,9 @@ class Mesh:
     """Nodes and the material values on them, scaled for the solver.
 
     Node quantities are averaged over the two halves of each node's box (a
-    jump at a node is integrated exactly); edge quantities are taken at the
-    edge midpoints. Scaled units: lengths by ``lref``, densities by ``c0``,
+    jump at a node is integrated exactly; lifetimes through their rates 1/tau,
+    harmonically, an infinite SRH lifetime being a zero rate); edge
+    quantities are taken at the edge midpoints. Scaled units: lengths by ``lref``, densities by ``c0``,
     potentials by ``vt``, diffusivities by ``d0``.
     """
 
@@ -326,7 +329,16 @@ class Mesh:
     ln_ni: float  # ln(ni / c0)
     junction: int  # node index of the (first) junction
     equilibrium: np.ndarray | None = field(default=None, repr=False)
-    jacobian_index: np.ndarray | None = field(default=None, repr=False)  # flat band positions, made once
+
+    @property
+    def lo(self):
+        """Node index at the left end of each edge."""
+        return np.arange(len(self.x) - 1)
+
+    @property
+    def hi(self):
+        """Node index at the right end of each edge."""
+        return np.arange(1, len(self.x))
 
 
 def _spacing(x, features, refine, grading, hmax):
@@ -412,6 +424,10 @@ def make_mesh(structure, refine=1.0, grading=0.08, points=30, reverse_to=0.0, su
     return _discretise(s, x, vt, c0)
 
 
+#: The SRH lifetime standing for none [s] (a rate of 1e-20 /s: nothing at any bias).
+_NO_SRH = 1e20
+
+
 def _discretise(s, x, vt, c0):
     """Material values on the nodes and edges of ``x``, scaled (see :class:`Mesh`)."""
     prof = s.profile
@@ -423,6 +439,12 @@ def _discretise(s, x, vt, c0):
 
     def node(f):
         return (left * f(x - delta) + right * f(x + delta)) / box
+
+    def node_lifetime(f):
+        # the rate 1/tau is what the box integrates; inf (no SRH: Auger alone gives the lifetime) has rate 0,
+        # and is kept finite (1e20 s) so that the SRH derivatives stay numbers
+        with np.errstate(divide="ignore"):
+            return np.minimum(box / (left / f(x - delta) + right / f(x + delta)), _NO_SRH)
 
     mid = 0.5 * (x[1:] + x[:-1])
     mu_n, mu_p = s.electron_mobility(mid), s.hole_mobility(mid)
@@ -438,8 +460,8 @@ def _discretise(s, x, vt, c0):
         sn, sp = s.velocity_p * lref / d0, s.velocity_n * lref / d0
     return Mesh(structure=s, x=x, vt=vt, c0=c0, lref=lref, d0=d0, h=h / lref, box=box / lref,
                 c=node(prof) / c0, nie=nie, theta=theta, an=(mu_n / mumax) / (h / lref),
-                ap=(mu_p / mumax) / (h / lref), tau_n=node(s.electron_lifetime) * t_scale,
-                tau_p=node(s.hole_lifetime) * t_scale, cn=s.auger_n * c0**2 * lref**2 / d0,
+                ap=(mu_p / mumax) / (h / lref), tau_n=node_lifetime(s.electron_lifetime) * t_scale,
+                tau_p=node_lifetime(s.hole_lifetime) * t_scale, cn=s.auger_n * c0**2 * lref**2 / d0,
                 cp=s.auger_p * c0**2 * lref**2 / d0, sn=sn, sp=sp, ln_ni=float(np.log(s.ni / c0)),
                 junction=jn)
 
@@ -517,7 +539,8 @@ def _fluxes(m, psi, n, p):
 
     Parameters
     ----------
-    m : Mesh
+    m : Mesh or _Stack
+        Edge ``k`` joins the nodes ``m.lo[k]`` and ``m.hi[k]``.
     psi, n, p : numpy.ndarray
         psi / Vt and the scaled densities at the nodes [-].
 
@@ -531,13 +554,15 @@ def _fluxes(m, psi, n, p):
     ----------
     Scharfetter & Gummel, IEEE TED 16, 64 (1969); Selberherr (1984), ch. 6.
     """
-    dn = np.diff(psi + m.theta)
-    dp = np.diff(psi - m.theta)
+    lo, hi = m.lo, m.hi
+    pn, pp = psi + m.theta, psi - m.theta
+    dn = pn[hi] - pn[lo]
+    dp = pp[hi] - pp[lo]
     bn, dbn = bernoulli(dn)
     bnm, dbnm = bernoulli(-dn)
     bp, dbp = bernoulli(dp)
     bpm, dbpm = bernoulli(-dp)
-    n0, n1, p0, p1 = n[:-1], n[1:], p[:-1], p[1:]
+    n0, n1, p0, p1 = n[lo], n[hi], p[lo], p[hi]
     jn = m.an * (n1 * bn - n0 * bnm)
     jp = -m.ap * (p1 * bpm - p0 * bp)
     return dict(jn=jn, jp=jp,
@@ -545,128 +570,254 @@ def _fluxes(m, psi, n, p):
                 jp_psi=m.ap * (p1 * dbpm + p0 * dbp), jp_p1=-m.ap * bpm * p1, jp_p0=m.ap * bp * p0)
 
 
-def _boundary(m, bias):
-    """Scaled contact values: psi/Vt, ln n, ln p at x = 0 (bias V) and x = L (grounded)."""
-    out = []
-    for k, v in ((0, bias), (-1, 0.0)):
-        c, nie = m.c[k], m.nie[k]
-        half = 0.5 * abs(c)
-        maj = half + np.sqrt(half * half + nie * nie)
-        mnr = nie * nie / maj
-        n, p = (maj, mnr) if c > 0 else (mnr, maj)
-        psi = np.log(n) - m.ln_ni - m.theta[k] + v / m.vt
-        out.append((psi, np.log(n), np.log(p)))
-    return out
+#: Identity rows around every device's block in the stacked band matrix: at least kl + ku, so that
+#: LAPACK's elimination and substitution steps have the same lengths for a device alone and in a stack.
+_SPACER = 2 * _BAND
 
 
-def _system(m, u, bias):
-    """Residual F and banded Jacobian (solve_banded layout, l = u = 5) at the state ``u`` (N, 3)."""
+class _Stack:
+    """Several meshes as one system: node and edge arrays end to end, rows with spacers.
+
+    Device k's unknowns (psi, ln n, ln p per node) are the rows
+    ``pos[node] + (0, 1, 2)`` of one banded matrix, its block preceded and the
+    last block followed by :data:`_SPACER` identity rows with zero coupling, so
+    that every block is factorised with operations of the same lengths
+    whatever its neighbours: one device alone is a stack of one.
+    """
+
+    def __init__(self, meshes):
+        self.meshes = list(meshes)
+        ms = self.meshes
+        sizes = np.array([len(m.x) for m in ms])
+        start = np.concatenate([[0], np.cumsum(sizes)[:-1]])
+        cat = np.concatenate
+        self.sizes, self.start, self.last = sizes, start, start + sizes - 1
+        for name in ("box", "c", "nie", "theta", "tau_n", "tau_p"):
+            setattr(self, name, cat([getattr(m, name) for m in ms]))
+        for name in ("h", "an", "ap"):
+            setattr(self, name, cat([getattr(m, name) for m in ms]))
+        self.cn = cat([np.full(len(m.x), m.cn) for m in ms])
+        self.cp = cat([np.full(len(m.x), m.cp) for m in ms])
+        self.lo = cat([np.arange(len(m.x) - 1) + s for m, s in zip(ms, start)])
+        self.hi = self.lo + 1
+        for name in ("vt", "ln_ni", "sn", "sp"):
+            setattr(self, name, np.array([getattr(m, name) for m in ms], float))
+        total = int(sizes.sum())
+        device = np.repeat(np.arange(len(ms)), sizes)
+        self.pos = 3 * np.arange(total) + _SPACER * (device + 1)
+        self.width = 3 * total + _SPACER * (len(ms) + 1)
+        self.rows = (self.pos[:, None] + np.arange(3)).ravel()
+        spacer = np.ones(self.width, bool)
+        spacer[self.rows] = False
+        self.spacer = np.flatnonzero(spacer)
+        self.row_start = 3 * start + _SPACER * (np.arange(len(ms)) + 1)  # first row of each block
+        self.flat = None  # band positions of the Jacobian entries, made at the first assembly
+        self.contact = None  # contact values without the bias (_boundary)
+        self.bc = None  # positions of the contact conditions (_contact_rows)
+
+
+_STACKS = {}
+
+
+def _stack_of(meshes):
+    """The :class:`_Stack` of these meshes (kept for reuse: active sets repeat from step to step)."""
+    key = tuple(id(m) for m in meshes)
+    st = _STACKS.get(key)
+    if st is None or any(a is not b for a, b in zip(st.meshes, meshes)):
+        if len(_STACKS) > 256:
+            _STACKS.clear()
+        st = _STACKS[key] = _Stack(meshes)
+    return st
+
+
+def _boundary(st, bias):
+    """Scaled contact values per device: psi/Vt, ln n, ln p at x = 0 (bias V) and x = L (grounded)."""
+    if st.contact is None:
+        st.contact = []
+        for k in (st.start, st.last):
+            c, nie = st.c[k], st.nie[k]
+            half = 0.5 * np.abs(c)
+            maj = half + np.sqrt(half * half + nie * nie)
+            mnr = nie * nie / maj
+            n, p = np.where(c > 0, maj, mnr), np.where(c > 0, mnr, maj)
+            st.contact.append((np.log(n) - st.ln_ni - st.theta[k], np.log(n), np.log(p)))
+    (b0, n0, p0), (bl, nl, pl) = st.contact
+    return (b0 + bias / st.vt, n0, p0), (bl + 0.0 / st.vt, nl, pl)
+
+
+def _contact_rows(st):
+    """Row and band positions of the contact conditions of a stack, made once.
+
+    Dirichlet rows: psi and ln p at x = 0, psi and ln n at x = L, and the minority
+    rows of ideal contacts (S = inf); Robin rows: the minority rows of the others.
+    """
+    if st.bc is None:
+        offsets = np.arange(-_BAND, _BAND + 1)
+        ideal_0, ideal_l = np.isinf(st.sn), np.isinf(st.sp)
+        dir_nodes = [st.start, st.start, st.last, st.last, st.start[ideal_0], st.last[ideal_l]]
+        dir_comps = [0, 2, 0, 1, 1, 2]
+        nodes = np.concatenate(dir_nodes)
+        comps = np.concatenate([np.full(len(x), c) for x, c in zip(dir_nodes, dir_comps)])
+        r = st.pos[nodes] + comps
+        band = (_DIAG - offsets[None, :] + 0 * r[:, None]).ravel(), (r[:, None] + offsets[None, :]).ravel()
+        rob = []
+        for node, comp, s, sign, keep in ((st.start, 1, st.sn, -1.0, ~ideal_0), (st.last, 2, st.sp, 1.0, ~ideal_l)):
+            nk, sk = node[keep], s[keep]
+            rr = st.pos[nk] + comp
+            rob.append(dict(node=nk, comp=comp, rows=rr, a=1.0 / (1.0 + sk), b=sk / (1.0 + sk), sign=sign, keep=keep,
+                            band=((_DIAG - offsets[None, :] + 0 * rr[:, None]).ravel(),
+                                  (rr[:, None] + offsets[None, :]).ravel())))
+        st.bc = dict(rows=r, nodes=nodes, comps=comps, band=band, robin=rob)
+    return st.bc
+
+
+def _system(st, u, bias):
+    """Residual F (width,) and banded Jacobian (solve_banded layout, l = u = 5) of a stack at the state ``u``.
+
+    ``u`` is (nodes of all devices, 3); ``bias`` one value per device.
+    """
     psi, ln_n, ln_p = u[:, 0], u[:, 1], u[:, 2]
     n, p = np.exp(ln_n), np.exp(ln_p)
     N = len(psi)
-    f = _fluxes(m, psi, n, p)
-    srh, aug, dr_n, dr_p = _recombination(m, n, p)
+    f = _fluxes(st, psi, n, p)
+    srh, aug, dr_n, dr_p = _recombination(st, n, p)
     r = srh + aug
+    lo, hi = st.lo, st.hi
     F = np.zeros((N, 3))
-    inv_h = 1.0 / m.h
-    e = np.diff(psi) * inv_h
-    F[:, 0] = m.box * (p - n + m.c)
-    F[:-1, 0] += e
-    F[1:, 0] -= e
-    F[:, 1] = -m.box * r
-    F[:-1, 1] += f["jn"]
-    F[1:, 1] -= f["jn"]
-    F[:, 2] = m.box * r
-    F[:-1, 2] += f["jp"]
-    F[1:, 2] -= f["jp"]
+    inv_h = 1.0 / st.h
+    e = (psi[hi] - psi[lo]) * inv_h
+    F[:, 0] = st.box * (p - n + st.c)
+    F[lo, 0] += e
+    F[hi, 0] -= e
+    F[:, 1] = -st.box * r
+    F[lo, 1] += f["jn"]
+    F[hi, 1] -= f["jn"]
+    F[:, 2] = st.box * r
+    F[lo, 2] += f["jp"]
+    F[hi, 2] -= f["jp"]
 
-    # Jacobian entries as (row node, row eq, col node, col var, value), summed into the band
-    # layout by one bincount over flat indices cached per mesh
+    # Jacobian entries as (row node, row eq, col node, col var, value), summed into the band layout by
+    # one bincount over flat indices made once per stack; entries of one kind for all devices in turn,
+    # so that each band position sums its parts in the same order for a device alone and in a stack
     idx = np.arange(N)
-    lo, hi = idx[:-1], idx[1:]
     jn_psi, jp_psi = f["jn_psi"], f["jp_psi"]
     entries = [
         # Poisson
-        (idx, 0, idx, 1, -m.box * n), (idx, 0, idx, 2, m.box * p),
+        (idx, 0, idx, 1, -st.box * n), (idx, 0, idx, 2, st.box * p),
         (lo, 0, lo, 0, -inv_h), (lo, 0, hi, 0, inv_h), (hi, 0, hi, 0, -inv_h), (hi, 0, lo, 0, inv_h),
         # electrons: row i gets +jn(edge i) - jn(edge i-1) - box R
-        (idx, 1, idx, 1, -m.box * dr_n * n), (idx, 1, idx, 2, -m.box * dr_p * p),
+        (idx, 1, idx, 1, -st.box * dr_n * n), (idx, 1, idx, 2, -st.box * dr_p * p),
         # holes: row i gets +jp(edge i) - jp(edge i-1) + box R
-        (idx, 2, idx, 1, m.box * dr_n * n), (idx, 2, idx, 2, m.box * dr_p * p),
+        (idx, 2, idx, 1, st.box * dr_n * n), (idx, 2, idx, 2, st.box * dr_p * p),
     ]
     for sign, rows in ((1.0, lo), (-1.0, hi)):
         entries += [(rows, 1, hi, 0, sign * jn_psi), (rows, 1, lo, 0, -sign * jn_psi),
                     (rows, 1, hi, 1, sign * f["jn_n1"]), (rows, 1, lo, 1, sign * f["jn_n0"]),
                     (rows, 2, hi, 0, sign * jp_psi), (rows, 2, lo, 0, -sign * jp_psi),
                     (rows, 2, hi, 2, sign * f["jp_p1"]), (rows, 2, lo, 2, sign * f["jp_p0"])]
-    flat = m.jacobian_index
-    if flat is None:
-        width = 3 * N
+    width = st.width
+    if st.flat is None:
         parts = []
         for rn, rc, cn, cc, _ in entries:
-            rr, col = 3 * rn + rc, 3 * cn + cc
-            parts.append((_BAND + rr - col) * width + col)
-        flat = m.jacobian_index = np.concatenate(parts)
+            rr, col = st.pos[rn] + rc, st.pos[cn] + cc
+            parts.append(col * _LDAB + _DIAG + rr - col)  # column-major: LAPACK's own layout, no copies
+        st.flat = np.concatenate(parts)
     vals = np.concatenate([e[4] for e in entries])
-    ab = np.bincount(flat, weights=vals, minlength=(2 * _BAND + 1) * 3 * N).reshape(2 * _BAND + 1, 3 * N)
+    ab = np.bincount(st.flat, weights=vals, minlength=_LDAB * width).reshape(width, _LDAB).T
+    ab[_DIAG, st.spacer] = 1.0
+    b = np.zeros(width)
+    b[st.rows] = F.ravel()
 
-    (psi0, lnn0, lnp0), (psil, lnnl, lnpl) = _boundary(m, bias)
-
-    def dirichlet(node, comp, value):
-        r = 3 * node + comp
-        for col in range(max(r - _BAND, 0), min(r + _BAND, 3 * N - 1) + 1):
-            ab[_BAND + r - col, col] = 0.0
-        ab[_BAND, r] = 1.0
-        F[node, comp] = u[node, comp] - value
-
-    def robin(node, comp, s, ln_eq, sign):
-        # a * (flux balance of the half box) + sign * b * (density - equilibrium)
-        if np.isinf(s):
-            dirichlet(node, comp, ln_eq)
-            return
-        a, b = 1.0 / (1.0 + s), s / (1.0 + s)
-        r = 3 * node + comp
-        for col in range(max(r - _BAND, 0), min(r + _BAND, 3 * N - 1) + 1):
-            ab[_BAND + r - col, col] *= a
-        dens = np.exp(u[node, comp])
-        ab[_BAND, r] += sign * b * dens
-        F[node, comp] = a * F[node, comp] + sign * b * (dens - np.exp(ln_eq))
-
-    dirichlet(0, 0, psi0)
-    dirichlet(0, 2, lnp0)
-    robin(0, 1, m.sn, lnn0, -1.0)  # Jn(1/2) - box R - S (n - n0) = 0
-    dirichlet(N - 1, 0, psil)
-    dirichlet(N - 1, 1, lnnl)
-    robin(N - 1, 2, m.sp, lnpl, 1.0)  # -Jp(N-3/2) + box R + S (p - p0) = 0
-    return F.ravel(), ab
+    (psi0, lnn0, lnp0), (psil, lnnl, lnpl) = _boundary(st, np.asarray(bias, float))
+    bc = _contact_rows(st)
+    ideal_0, ideal_l = np.isinf(st.sn), np.isinf(st.sp)
+    values = np.concatenate([psi0, lnp0, psil, lnnl, lnn0[ideal_0], lnpl[ideal_l]])
+    r = bc["rows"]
+    ab[bc["band"]] = 0.0
+    ab[_DIAG, r] = 1.0
+    b[r] = u[bc["nodes"], bc["comps"]] - values
+    # Robin rows: a * (flux balance of the half box) + sign * b * (density - equilibrium);
+    # Jn(1/2) - box R - S (n - n0) = 0 at x = 0, -Jp(N-3/2) + box R + S (p - p0) = 0 at x = L
+    for rb, ln_eq in zip(bc["robin"], (lnn0, lnpl)):
+        if not len(rb["rows"]):
+            continue
+        rr, a = rb["rows"], rb["a"]
+        ab[rb["band"]] *= np.repeat(a, 2 * _BAND + 1)
+        dens = np.exp(u[rb["node"], rb["comp"]])
+        ab[_DIAG, rr] += rb["sign"] * rb["b"] * dens
+        b[rr] = a * b[rr] + rb["sign"] * rb["b"] * (dens - np.exp(ln_eq[rb["keep"]]))
+    return b, ab
 
 
-def _newton(m, u, bias, tol=1e-9, maxit=40):
-    """Damped Newton iterations from ``u``; returns (u, iterations) or (None, iterations).
+def _banded(ab, rhs):
+    """LAPACK ?gbsv on a stack's band matrix (consumed: overwritten by its factors); None if singular."""
+    _, _, x, info = _gbsv(_BAND, _BAND, ab, rhs, overwrite_ab=1, overwrite_b=1)
+    if info > 0:
+        return None
+    if info < 0:
+        raise ValueError(f"gbsv: argument {-info} invalid")
+    return x
+
+
+def _newton_many(meshes, requests, tol=1e-9):
+    """Damped Newton iterations for several devices at once, one stacked banded solve per iteration.
+
+    ``requests[k]`` is (starting state (N_k, 3), bias [V], iteration limit) for ``meshes[k]``;
+    returns a list of (state or None, iterations). Each device converges, is damped and stops on its
+    own numbers alone: converged or failed devices leave the stack, and a singular or non-finite stacked
+    solve is redone device by device, so a device's iterates are the same alone and in any company.
 
     Converged when the largest update (psi/Vt, ln n, ln p) is below ``tol``, or
     below 100 tol twice running: in a heavily doped region the minority
     density's logarithm carries rounding noise of about 1e-9 that no iteration
     removes (its carriers are 1e-40 of the majority), harmless to every result.
     """
-    u = u.copy()
-    last = np.inf
-    for it in range(1, maxit + 1):
-        F, ab = _system(m, u, bias)
-        try:
-            du = solve_banded((_BAND, _BAND), ab, -F, overwrite_ab=True, overwrite_b=True, check_finite=False)
-        except np.linalg.LinAlgError:  # an iterate so far off that a density underflowed: a failed step
-            return None, it
-        if not np.all(np.isfinite(du)):
-            return None, it
+    u = [np.array(r[0], float, copy=True) for r in requests]
+    bias = np.array([r[1] for r in requests], float)
+    maxit = [int(r[2]) for r in requests]
+    last = [np.inf] * len(meshes)
+    out = [None] * len(meshes)
+    active = list(range(len(meshes)))
+    it = 0
+    while active:
+        it += 1
+        st = _stack_of([meshes[k] for k in active])
+        F, ab = _system(st, np.concatenate([u[k] for k in active]), bias[active])
+        du = _banded(ab, -F)
+        if du is None or not np.all(np.isfinite(du)):
+            # one device's trouble must not touch the others: each solved alone (the same operations)
+            du = np.concatenate([_alone(meshes[k], u[k], bias[k]) for k in active])
+        else:
+            du = du[st.rows].reshape(-1, 3)
         big = np.abs(du) > 1.0
         du = np.where(big, np.sign(du) * (1.0 + np.log(np.where(big, np.abs(du), 1.0))), du)
-        u += du.reshape(-1, 3)
-        size = np.max(np.abs(du))
-        if size < tol or max(size, last) < 100 * tol:
-            return u, it
-        last = size
-    return None, maxit
+        still = []
+        for j, k in enumerate(active):
+            d = du[st.start[j]:st.last[j] + 1]
+            if not np.all(np.isfinite(d)):
+                out[k] = (None, it)
+                continue
+            u[k] += d
+            size = np.max(np.abs(d))
+            if size < tol or max(size, last[k]) < 100 * tol:
+                out[k] = (u[k], it)
+            elif it >= maxit[k]:
+                out[k] = (None, it)
+            else:
+                last[k] = size
+                still.append(k)
+        active = still
+    return out
+
+
+def _alone(m, u, bias):
+    """One device's Newton update as a stack of one (NaN where singular)."""
+    st = _stack_of([m])
+    F, ab = _system(st, u, [bias])
+    du = _banded(ab, -F)
+    if du is None:
+        return np.full((len(m.x), 3), np.nan)
+    return du[st.rows].reshape(-1, 3)
 
 
 def _neutral_guess(m):
@@ -678,6 +829,11 @@ def _neutral_guess(m):
     p = np.where(m.c > 0, mnr, maj)
     psi = np.log(n) - m.ln_ni - m.theta
     return np.column_stack([psi, np.log(n), np.log(p)])
+
+
+#: Newton iterations allowed for the equilibrium solve and for each continuation step.
+_EQUILIBRIUM_ITERATIONS = 200
+_STEP_ITERATIONS = 40
 
 
 def equilibrium(mesh):
@@ -698,7 +854,7 @@ def equilibrium(mesh):
     SolverError
         No convergence in 200 iterations.
     """
-    u, _ = _newton(mesh, _neutral_guess(mesh), 0.0, maxit=200)
+    u, _ = _newton_many([mesh], [(_neutral_guess(mesh), 0.0, _EQUILIBRIUM_ITERATIONS)])[0]
     if u is None:
         raise SolverError("no convergence at equilibrium")
     mesh.equilibrium = u
@@ -805,13 +961,96 @@ def _observe(m, u, bias, capacitance):
     qdep = qscale * abs(slope[e])
     cap = np.nan
     if capacitance:
-        _, ab = _system(m, u, bias)
-        rhs = np.zeros(3 * len(psi))
-        rhs[0] = 1.0 / m.vt  # d(psi0/Vt)/dV: the only bias-dependent equation
-        du = solve_banded((_BAND, _BAND), ab, rhs, overwrite_ab=True, check_finite=False).reshape(-1, 3)
+        st = _stack_of([m])
+        _, ab = _system(st, u, [bias])
+        rhs = np.zeros(st.width)
+        rhs[st.pos[0]] = 1.0 / m.vt  # d(psi0/Vt)/dV: the only bias-dependent equation
+        du = _banded(ab, rhs)[st.rows].reshape(-1, 3)
         # the charge the n contact delivers: every electron in the device [C/m^2 per V]
         cap = Q * m.c0 * m.lref * np.sum(m.box * n * du[:, 1]) * m.structure.area
     return j, out, field, stored, qdep, cap, j_junction, vj
+
+
+_COMPONENTS = ("srh_depletion", "srh_neutral", "auger", "surface_p", "surface_n")
+
+
+def _continuation(m, v, want_c, max_step):
+    """One device's bias continuation, as a generator of Newton requests.
+
+    Yields (state, bias, iteration limit) and receives (state or None,
+    iterations) for each; returns the raw results. Every decision (step size,
+    halving, predictor) depends on this device's own numbers only, so the
+    device gives the same bytes solved alone (:func:`solve`) or among others
+    (:func:`solve_many`).
+    """
+    if m.equilibrium is None:
+        u, _ = yield (_neutral_guess(m), 0.0, _EQUILIBRIUM_ITERATIONS)
+        if u is None:
+            raise SolverError("no convergence at equilibrium")
+        m.equilibrium = u
+    nb, N = len(v), len(m.x)
+    res = dict(j=np.zeros(nb), jj=np.zeros(nb), vj=np.zeros(nb), field=np.zeros(nb), stored=np.zeros(nb),
+               qdep=np.zeros(nb), cap=np.zeros(nb), it=np.zeros(nb, int), psi=np.zeros((nb, N)),
+               n=np.zeros((nb, N)), p=np.zeros((nb, N)))
+    comps = {k: np.zeros(nb) for k in _COMPONENTS}
+    for direction in (1.0, -1.0):
+        sel = np.flatnonzero(v >= 0) if direction > 0 else np.flatnonzero(v < 0)
+        order = sel[np.argsort(direction * v[sel], kind="stable")]
+        step_max = (max_step or (4.0 if direction > 0 else 20.0) * m.vt)
+        hist = [(0.0, m.equilibrium)]
+        for k in order:
+            target = v[k]
+            its = 0
+            step = step_max
+            while hist[-1][0] != target:
+                v0, u0 = hist[-1]
+                vn = v0 + np.clip(target - v0, -step, step)
+                if abs(vn - target) < 1e-12:
+                    vn = target
+                guess = u0
+                if len(hist) > 1:
+                    v1, u1 = hist[-2]
+                    if v0 != v1:
+                        guess = u0 + (u0 - u1) * (vn - v0) / (v0 - v1)
+                u, it = yield (guess, vn, _STEP_ITERATIONS)
+                its += it
+                if u is None:
+                    step *= 0.5
+                    if step < 1e-4:
+                        raise SolverError(f"no convergence at {vn:.4g} V")
+                    continue
+                hist.append((vn, u))
+                hist = hist[-2:]
+                # in reverse bias the solution changes smoothly with |V|: steps may grow to a fifth of it
+                cap = step_max if direction > 0 or max_step else max(step_max, 0.2 * abs(vn))
+                step = min(step * 1.5, cap)
+            u = hist[-1][1]
+            j, out, fld, st, qd, cp, jj, vj = _observe(m, u, target, want_c[k])
+            res["j"][k], res["field"][k], res["stored"][k], res["qdep"][k], res["cap"][k] = j, fld, st, qd, cp
+            res["jj"][k], res["vj"][k] = jj, vj
+            res["it"][k] = its
+            res["psi"][k], res["n"][k], res["p"][k] = u[:, 0] * m.vt, np.exp(u[:, 1]) * m.c0, np.exp(u[:, 2]) * m.c0
+            for key in comps:
+                comps[key][k] = out[key]
+    return res, comps
+
+
+def _solution(structure, m, v, want_c, res, comps):
+    comps["diffusion"] = res["j"] - comps["srh_depletion"]
+    area = structure.area
+    return Solution(bias=v, current_density=res["j"], current=res["j"] * area, components=comps,
+                    peak_field=res["field"], stored_charge=res["stored"], depletion_charge=res["qdep"],
+                    capacitance=np.where(want_c, res["cap"], np.nan),
+                    junction_current_density=res["jj"], junction_voltage=res["vj"], psi=res["psi"], n=res["n"],
+                    p=res["p"], iterations=res["it"], mesh=m,
+                    terminal_bias=v + res["j"] * area * float(structure.contact_resistance))
+
+
+def _biases(biases, who):
+    v = np.asarray(biases, dtype=float).ravel()
+    if not np.all(np.isfinite(v)):
+        raise ValueError(f"{who}: every bias must be a finite number of volts")
+    return v
 
 
 def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=1.0):
@@ -848,67 +1087,98 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
 
     Notes
     -----
-    Valid for non-degenerate silicon (Boltzmann statistics), no impact
-    ionisation or tunnelling (reverse biases short of breakdown), steady state.
+    Valid for non-degenerate silicon (Boltzmann statistics: see
+    :attr:`Solution.degenerate`), no impact ionisation or tunnelling
+    (reverse biases short of breakdown: see :func:`breakdown_bias`), steady
+    state. The same code as :func:`solve_many` with one device: the same
+    bytes as that device among others.
     """
-    v = np.asarray(biases, dtype=float).ravel()
-    if not np.all(np.isfinite(v)):
-        raise ValueError("solve: every bias must be a finite number of volts")
-    m = mesh if mesh is not None else make_mesh(structure, refine=refine, reverse_to=min(v.min(initial=0.0), 0.0))
-    if m.equilibrium is None:
-        equilibrium(m)
-    nb, N = len(v), len(m.x)
-    want_c = np.broadcast_to(np.asarray(capacitance, dtype=bool), v.shape)
-    res = dict(j=np.zeros(nb), jj=np.zeros(nb), vj=np.zeros(nb), field=np.zeros(nb), stored=np.zeros(nb), qdep=np.zeros(nb), cap=np.zeros(nb),
-               it=np.zeros(nb, int), psi=np.zeros((nb, N)), n=np.zeros((nb, N)), p=np.zeros((nb, N)))
-    comps = {k: np.zeros(nb) for k in ("srh_depletion", "srh_neutral", "auger", "surface_p", "surface_n")}
-    for direction in (1.0, -1.0):
-        sel = np.flatnonzero(v >= 0) if direction > 0 else np.flatnonzero(v < 0)
-        order = sel[np.argsort(direction * v[sel])]
-        step_max = (max_step or (4.0 if direction > 0 else 20.0) * m.vt)
-        hist = [(0.0, m.equilibrium)]
-        for k in order:
-            target = v[k]
-            its = 0
-            step = step_max
-            while hist[-1][0] != target:
-                v0, u0 = hist[-1]
-                vn = v0 + np.clip(target - v0, -step, step)
-                if abs(vn - target) < 1e-12:
-                    vn = target
-                guess = u0
-                if len(hist) > 1:
-                    v1, u1 = hist[-2]
-                    if v0 != v1:
-                        guess = u0 + (u0 - u1) * (vn - v0) / (v0 - v1)
-                u, it = _newton(m, guess, vn)
-                its += it
-                if u is None:
-                    step *= 0.5
-                    if step < 1e-4:
-                        raise SolverError(f"no convergence at {vn:.4g} V")
-                    continue
-                hist.append((vn, u))
-                hist = hist[-2:]
-                # in reverse bias the solution changes smoothly with |V|: steps may grow to a fifth of it
-                cap = step_max if direction > 0 or max_step else max(step_max, 0.2 * abs(vn))
-                step = min(step * 1.5, cap)
-            u = hist[-1][1]
-            j, out, fld, st, qd, cp, jj, vj = _observe(m, u, target, want_c[k])
-            res["j"][k], res["field"][k], res["stored"][k], res["qdep"][k], res["cap"][k] = j, fld, st, qd, cp
-            res["jj"][k], res["vj"][k] = jj, vj
-            res["it"][k] = its
-            res["psi"][k], res["n"][k], res["p"][k] = u[:, 0] * m.vt, np.exp(u[:, 1]) * m.c0, np.exp(u[:, 2]) * m.c0
-            for key in comps:
-                comps[key][k] = out[key]
-    comps["diffusion"] = res["j"] - comps["srh_depletion"]
-    area = structure.area
-    return Solution(bias=v, current_density=res["j"], current=res["j"] * area, components=comps,
-                    peak_field=res["field"], stored_charge=res["stored"], depletion_charge=res["qdep"],
-                    capacitance=np.where(want_c, res["cap"], np.nan),
-                    junction_current_density=res["jj"], junction_voltage=res["vj"], psi=res["psi"], n=res["n"],
-                    p=res["p"], iterations=res["it"], mesh=m,
-                    terminal_bias=v + res["j"] * area * float(structure.contact_resistance))
+    return solve_many([structure], [biases], meshes=None if mesh is None else [mesh], capacitance=[capacitance],
+                      max_step=max_step, refine=refine)[0]
+
+
+def solve_many(structures, biases, meshes=None, capacitance=True, max_step=None, refine=1.0, errors="raise"):
+    """Solve several diodes at once: one stacked banded system per Newton step for all of them.
+
+    Each device follows its own bias continuation (:func:`solve`'s schedule:
+    fixed steps in volts, halved on failure, decided by that device's numbers
+    alone); at every round the devices still running each ask for one Newton
+    solve, and these run together, the per-device Jacobians stacked along the
+    diagonal of one band matrix with zero coupling (and identity spacer rows,
+    so that LAPACK treats every block alike) and solved by one
+    :func:`scipy.linalg.solve_banded`. A device that has converged leaves the
+    stack. The result for each device is byte for byte what :func:`solve`
+    gives for it alone. Meshes may differ in size.
+
+    Parameters
+    ----------
+    structures : sequence of Structure
+    biases : array_like or sequence of array_like
+        One bias list for all devices, or one per device [V].
+    meshes : sequence of Mesh or None, optional
+        One per device (None entries: :func:`make_mesh` with ``refine``, graded
+        for the device's most reverse bias).
+    capacitance : bool, array_like of bool, or a sequence of them (one per device)
+        As in :func:`solve`.
+    max_step : float, optional
+        As in :func:`solve`.
+    refine : float
+        Mesh density multiplier where no mesh is given.
+    errors : {'raise', 'keep'}
+        On a device that fails: raise its SolverError (naming the device), or
+        keep the exception object in its place in the returned list.
+
+    Returns
+    -------
+    list of Solution
+        In the order of ``structures``.
+
+    Raises
+    ------
+    SolverError
+        A device failed (``errors='raise'``).
+    ValueError
+        A bias is not finite, or the lists differ in length.
+    """
+    structures = list(structures)
+    nd = len(structures)
+    per_device = (isinstance(biases, (list, tuple, np.ndarray)) and len(biases) == nd and nd > 0
+                  and all(np.ndim(b) >= 1 for b in biases))
+    vs = [_biases(b, "solve") for b in biases] if per_device else [_biases(biases, "solve")] * nd
+    caps = capacitance if isinstance(capacitance, (list, tuple)) and len(capacitance) == nd else [capacitance] * nd
+    meshes = list(meshes) if meshes is not None else [None] * nd
+    if len(meshes) != nd or len(caps) != nd:
+        raise ValueError("solve_many: one mesh and one capacitance choice per structure")
+    ms, want, gens = [], [], []
+    for s, v, mesh, c in zip(structures, vs, meshes, caps):
+        m = mesh if mesh is not None else make_mesh(s, refine=refine, reverse_to=min(v.min(initial=0.0), 0.0))
+        w = np.broadcast_to(np.asarray(c, dtype=bool), v.shape)
+        ms.append(m)
+        want.append(w)
+        gens.append(_continuation(m, v, w, max_step))
+    results = [None] * nd
+    pending = {}
+
+    def advance(k, value):
+        try:
+            pending[k] = gens[k].send(value)
+        except StopIteration as stop:
+            pending.pop(k, None)
+            results[k] = _solution(structures[k], ms[k], vs[k], want[k], *stop.value)
+        except SolverError as exc:
+            pending.pop(k, None)
+            if errors == "raise":
+                raise SolverError(f"device {k}: {exc}" if nd > 1 else str(exc)) from None
+            results[k] = exc
+
+    for k in range(nd):
+        advance(k, None)
+    while pending:
+        ks = list(pending)
+        outs = _newton_many([ms[k] for k in ks], [pending[k] for k in ks])
+        for k, o in zip(ks, outs):
+            advance(k, o)
+    return results
 
 
 # --------------------------------------------------------------------------- degeneracy
