@@ -25,6 +25,18 @@ The coupled system is solved by Newton's method on the banded Jacobian
 (bandwidth 5 in the interleaved ordering), updates larger than one unit
 (Vt for psi, a factor e for the densities) damped logarithmically, with bias
 continuation from equilibrium (linear predictor, step halving on failure).
+:func:`solve_many` solves many devices at once: each follows its own
+continuation, and their Newton steps run as one band matrix (the blocks
+stacked along the diagonal, no coupling); :func:`solve` is the same code for
+one device, and gives the same bytes.
+
+From a structure made by :func:`structure_from_result` the solver sees the
+closed forms' parameters: each side's minority lifetime in its neutral region
+and the recombination lifetime in the depletion region at the reference bias,
+and the contact resistance (:attr:`Solution.terminal_bias`).
+:attr:`Solution.degenerate` warns where Boltzmann statistics no longer hold;
+:func:`breakdown_bias` finds avalanche breakdown from the ionization integral
+over the solver's field.
 
 Recombination: Shockley-Read-Hall with a midgap trap (n1 = p1 = ni_eff),
 R = (n p - ni_eff^2) / (tau_p (n + ni_eff) + tau_n (p + ni_eff)), plus
@@ -672,7 +684,7 @@ def _contact_rows(st):
 
 
 def _system(st, u, bias):
-    """Residual F (width,) and banded Jacobian (solve_banded layout, l = u = 5) of a stack at the state ``u``.
+    """Residual F (width,) and banded Jacobian (LAPACK ?gbsv layout, kl = ku = 5) of a stack at the state ``u``.
 
     ``u`` is (nodes of all devices, 3); ``bias`` one value per device.
     """
@@ -1105,9 +1117,9 @@ def solve_many(structures, biases, meshes=None, capacitance=True, max_step=None,
     alone); at every round the devices still running each ask for one Newton
     solve, and these run together, the per-device Jacobians stacked along the
     diagonal of one band matrix with zero coupling (and identity spacer rows,
-    so that LAPACK treats every block alike) and solved by one
-    :func:`scipy.linalg.solve_banded`. A device that has converged leaves the
-    stack. The result for each device is byte for byte what :func:`solve`
+    so that LAPACK treats every block alike) and solved by one call of
+    LAPACK's ?gbsv (:func:`scipy.linalg.lapack.dgbsv`). A device that has
+    converged leaves the stack. The result for each device is byte for byte what :func:`solve`
     gives for it alone. Meshes may differ in size.
 
     Parameters
