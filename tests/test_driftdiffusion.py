@@ -530,3 +530,37 @@ def test_solve_many_takes_a_bias_list_per_device():
     assert np.array_equal(a.bias, [0.3, -1.0]) and np.array_equal(b.bias, [0.1])
     assert np.array_equal(a.current, dd.solve(s, [0.3, -1.0], capacitance=False).current)
     assert np.array_equal(b.current, dd.solve(s, [0.1], capacitance=False).current)
+
+
+def test_solve_many_redoes_a_singular_stack_device_by_device(monkeypatch):
+    """The p+ n 1e17 cm^-3 junction meets a singular Jacobian on its way to -2 V (see above); in a stack
+    with a healthy device the stacked solve fails, each device is redone alone, and both still equal
+    their single solves byte for byte (common practice: one device's trouble stays its own)."""
+    calls = []
+    alone_step = dd._alone
+
+    def counted(*args):
+        calls.append(1)
+        return alone_step(*args)
+
+    sick = dd.structure_from_result(one_sided(1e17, 5), 0)
+    healthy = dd.structure_from_result(derive(20, 50, 1), 0)
+    singles = [dd.solve(s, [-2.0]) for s in (sick, healthy)]
+    monkeypatch.setattr(dd, "_alone", counted)
+    both = dd.solve_many([sick, healthy], [-2.0])
+    assert calls
+    for a, b in zip(singles, both):
+        assert np.array_equal(a.psi, b.psi) and np.array_equal(a.n, b.n) and np.array_equal(a.p, b.p)
+        assert np.array_equal(a.current, b.current) and np.array_equal(a.capacitance, b.capacitance)
+
+
+def test_solve_many_keeps_a_failed_device_in_its_place(monkeypatch):
+    """errors='keep': a device that cannot be solved (here: one Newton iteration allowed per step, so
+    that no step away from 0 V converges and the steps halve below 1e-4 V) gives its SolverError in
+    its place, the other its Solution; errors='raise' names the device (common practice)."""
+    s = dd.structure_from_result(derive(20, 50, 1), 0)
+    monkeypatch.setattr(dd, "_STEP_ITERATIONS", 1)
+    out = dd.solve_many([s, s], [[0.0], [0.3]], capacitance=False, errors="keep")
+    assert isinstance(out[0], dd.Solution) and isinstance(out[1], dd.SolverError)
+    with pytest.raises(dd.SolverError, match="device 1"):
+        dd.solve_many([s, s], [[0.0], [0.3]], capacitance=False)
