@@ -771,55 +771,85 @@ def _banded(ab, rhs):
     return x
 
 
-def _newton_many(meshes, requests, tol=1e-9):
-    """Damped Newton iterations for several devices at once, one stacked banded solve per iteration.
+def _drive(meshes, tasks, tol=1e-9):
+    """Run devices' tasks to the end, all their Newton iterations in stacked banded solves.
 
-    ``requests[k]`` is (starting state (N_k, 3), bias [V], iteration limit) for ``meshes[k]``;
-    returns a list of (state or None, iterations). Each device converges, is damped and stops on its
-    own numbers alone: converged or failed devices leave the stack, and a singular or non-finite stacked
-    solve is redone device by device, so a device's iterates are the same alone and in any company.
+    ``tasks[k]`` is a generator for ``meshes[k]`` that yields Newton requests
+    (starting state (N_k, 3), bias [V], iteration limit) and is sent back
+    (state or None, iterations) for each. At every iteration all devices with a
+    request run together as one band matrix; a device whose Newton solve ends
+    (converged or failed) is handed its result at once and joins the next
+    iteration with its next request, so the stack stays full until devices
+    finish. Each device converges, is damped and stops on its own numbers
+    alone, and a singular or non-finite stacked solve is redone device by
+    device: a device's iterates are the same alone and in any company.
 
     Converged when the largest update (psi/Vt, ln n, ln p) is below ``tol``, or
     below 100 tol twice running: in a heavily doped region the minority
     density's logarithm carries rounding noise of about 1e-9 that no iteration
     removes (its carriers are 1e-40 of the majority), harmless to every result.
+
+    Returns
+    -------
+    list
+        Per device, ('done', the generator's return value) or ('error', the
+        SolverError it raised).
     """
-    u = [np.array(r[0], float, copy=True) for r in requests]
-    bias = np.array([r[1] for r in requests], float)
-    maxit = [int(r[2]) for r in requests]
-    last = [np.inf] * len(meshes)
     out = [None] * len(meshes)
-    active = list(range(len(meshes)))
-    it = 0
-    while active:
-        it += 1
-        st = _stack_of([meshes[k] for k in active])
-        F, ab = _system(st, np.concatenate([u[k] for k in active]), bias[active])
+    jobs = {}  # device -> [state, bias, iteration limit, iterations, last update size]
+
+    def advance(k, value):
+        try:
+            guess, bias, maxit = tasks[k].send(value)
+        except StopIteration as stop:
+            jobs.pop(k, None)
+            out[k] = ("done", stop.value)
+        except SolverError as exc:
+            jobs.pop(k, None)
+            out[k] = ("error", exc)
+        else:
+            jobs[k] = [np.array(guess, float, copy=True), float(bias), int(maxit), 0, np.inf]
+
+    for k in range(len(meshes)):
+        advance(k, None)
+    while jobs:
+        ks = list(jobs)
+        st = _stack_of([meshes[k] for k in ks])
+        F, ab = _system(st, np.concatenate([jobs[k][0] for k in ks]), np.array([jobs[k][1] for k in ks]))
         du = _banded(ab, -F)
         if du is None or not np.all(np.isfinite(du)):
             # one device's trouble must not touch the others: each solved alone (the same operations)
-            du = np.concatenate([_alone(meshes[k], u[k], bias[k]) for k in active])
+            du = np.concatenate([_alone(meshes[k], jobs[k][0], jobs[k][1]) for k in ks])
         else:
             du = du[st.rows].reshape(-1, 3)
         big = np.abs(du) > 1.0
         du = np.where(big, np.sign(du) * (1.0 + np.log(np.where(big, np.abs(du), 1.0))), du)
-        still = []
-        for j, k in enumerate(active):
+        for j, k in enumerate(ks):
+            job = jobs[k]
+            job[3] += 1
+            it = job[3]
             d = du[st.start[j]:st.last[j] + 1]
             if not np.all(np.isfinite(d)):
-                out[k] = (None, it)
+                advance(k, (None, it))
                 continue
-            u[k] += d
+            job[0] += d
             size = np.max(np.abs(d))
-            if size < tol or max(size, last[k]) < 100 * tol:
-                out[k] = (u[k], it)
-            elif it >= maxit[k]:
-                out[k] = (None, it)
+            if size < tol or max(size, job[4]) < 100 * tol:
+                advance(k, (job[0], it))
+            elif it >= job[2]:
+                advance(k, (None, it))
             else:
-                last[k] = size
-                still.append(k)
-        active = still
+                job[4] = size
     return out
+
+
+def _newton_many(meshes, requests, tol=1e-9):
+    """Damped Newton solves of several devices at once (see :func:`_drive`): one request
+    (starting state, bias [V], iteration limit) per mesh; returns (state or None, iterations) each."""
+    def one(request):
+        return (yield request)
+
+    return [r[1] for r in _drive(meshes, [one(r) for r in requests], tol)]
 
 
 def _alone(m, u, bias):
@@ -1168,28 +1198,14 @@ def solve_many(structures, biases, meshes=None, capacitance=True, max_step=None,
         ms.append(m)
         want.append(w)
         gens.append(_continuation(m, v, w, max_step))
-    results = [None] * nd
-    pending = {}
-
-    def advance(k, value):
-        try:
-            pending[k] = gens[k].send(value)
-        except StopIteration as stop:
-            pending.pop(k, None)
-            results[k] = _solution(structures[k], ms[k], vs[k], want[k], *stop.value)
-        except SolverError as exc:
-            pending.pop(k, None)
+    results = []
+    for k, (kind, value) in enumerate(_drive(ms, gens)):
+        if kind == "error":
             if errors == "raise":
-                raise SolverError(f"device {k}: {exc}" if nd > 1 else str(exc)) from None
-            results[k] = exc
-
-    for k in range(nd):
-        advance(k, None)
-    while pending:
-        ks = list(pending)
-        outs = _newton_many([ms[k] for k in ks], [pending[k] for k in ks])
-        for k, o in zip(ks, outs):
-            advance(k, o)
+                raise SolverError(f"device {k}: {value}" if nd > 1 else str(value)) from None
+            results.append(value)
+        else:
+            results.append(_solution(structures[k], ms[k], vs[k], want[k], *value))
     return results
 
 
