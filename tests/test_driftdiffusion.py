@@ -31,6 +31,7 @@ import numpy as np
 import pytest
 from scipy import constants as sc
 from scipy import integrate
+from support import ROOT
 
 from modelgen import description, extraction
 from modelgen.physics import driftdiffusion as dd
@@ -331,8 +332,6 @@ def test_default_card_low_forward_current_matches_solver(example):
     from modelgen.spice import evaluator
     from modelgen.structures import structure_for
 
-    from support import ROOT
-
     r = extraction.derive(description.load(ROOT / "examples" / f"{example}.toml"))
     card = dict(card_values(r, 0, "ngspice")[0])
     sol = dd.solve(structure_for(r, 0), np.arange(4.0 * 0.025852, 0.6, 0.02), capacitance=False)
@@ -502,8 +501,6 @@ def test_solve_many_gives_the_bytes_of_solve_for_each_device():
     """Five devices of different mesh sizes (the four examples and a tabulated erfc emitter) solved
     together equal each solved alone, array for array, in either order (the contract of solve_many:
     one code path for one device and many, the same bytes; common practice)."""
-    from support import ROOT
-
     structures = [dd.structure_from_result(extraction.derive(description.load(ROOT / "examples" / f"{e}.toml")), 0)
                   for e in EXAMPLES]
     prof = profiles.erfc_emitter(1e20 * 1e6, 0.05e-6, 1e15 * 1e6, 30e-6)

@@ -676,10 +676,11 @@ def _contact_rows(st):
         for node, comp, s, sign, keep in ((st.start, 1, st.sn, -1.0, ~ideal_0), (st.last, 2, st.sp, 1.0, ~ideal_l)):
             nk, sk = node[keep], s[keep]
             rr = st.pos[nk] + comp
-            rob.append(dict(node=nk, comp=comp, rows=rr, a=1.0 / (1.0 + sk), b=sk / (1.0 + sk), sign=sign, keep=keep,
-                            band=((_DIAG - offsets[None, :] + 0 * rr[:, None]).ravel(),
-                                  (rr[:, None] + offsets[None, :]).ravel())))
-        st.bc = dict(rows=r, nodes=nodes, comps=comps, band=band, robin=rob)
+            rob.append({"node": nk, "comp": comp, "rows": rr, "a": 1.0 / (1.0 + sk), "b": sk / (1.0 + sk),
+                        "sign": sign, "keep": keep,
+                        "band": ((_DIAG - offsets[None, :] + 0 * rr[:, None]).ravel(),
+                                 (rr[:, None] + offsets[None, :]).ravel())})
+        st.bc = {"rows": r, "nodes": nodes, "comps": comps, "band": band, "robin": rob}
     return st.bc
 
 
