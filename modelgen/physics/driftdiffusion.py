@@ -1136,8 +1136,9 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
     state. The same code as :func:`solve_many` with one device: the same
     bytes as that device among others.
     """
-    return solve_many([structure], [biases], meshes=None if mesh is None else [mesh], capacitance=[capacitance],
-                      max_step=max_step, refine=refine)[0]
+    return solve_many([structure], [np.atleast_1d(np.asarray(biases, dtype=float))],
+                      meshes=None if mesh is None else [mesh], capacitance=capacitance, max_step=max_step,
+                      refine=refine)[0]
 
 
 def solve_many(structures, biases, meshes=None, capacitance=True, max_step=None, refine=1.0, errors="raise"):
@@ -1161,8 +1162,10 @@ def solve_many(structures, biases, meshes=None, capacitance=True, max_step=None,
     meshes : sequence of Mesh or None, optional
         One per device (None entries: :func:`make_mesh` with ``refine``, graded
         for the device's most reverse bias).
-    capacitance : bool, array_like of bool, or a sequence of them (one per device)
-        As in :func:`solve`.
+    capacitance : bool, array_like of bool, or a list of arrays of bool (one per device)
+        As in :func:`solve`: one choice, or one mask over the biases, for all
+        devices; or a list of ``len(structures)`` masks (arrays, each over that
+        device's biases).
     max_step : float, optional
         As in :func:`solve`.
     refine : float
@@ -1188,7 +1191,9 @@ def solve_many(structures, biases, meshes=None, capacitance=True, max_step=None,
     per_device = (isinstance(biases, (list, tuple, np.ndarray)) and len(biases) == nd and nd > 0
                   and all(np.ndim(b) >= 1 for b in biases))
     vs = [_biases(b, "solve") for b in biases] if per_device else [_biases(biases, "solve")] * nd
-    caps = capacitance if isinstance(capacitance, (list, tuple)) and len(capacitance) == nd else [capacitance] * nd
+    per_device = (isinstance(capacitance, (list, tuple)) and len(capacitance) == nd
+                  and all(np.ndim(c) >= 1 for c in capacitance))
+    caps = list(capacitance) if per_device else [capacitance] * nd
     meshes = list(meshes) if meshes is not None else [None] * nd
     if len(meshes) != nd or len(caps) != nd:
         raise ValueError("solve_many: one mesh and one capacitance choice per structure")
@@ -1472,7 +1477,7 @@ def breakdown_bias(structure, material=silicon, start=-1.0, limit=-1e4, rtol=1e-
 
     g_lo, g_hi = g(v_lo)[0], g(v_hi)[0]
     if not g_lo < 0 <= g_hi:  # the finer mesh moved the root out of the bracket: widen once
-        v_lo, v_hi = v_lo / 2.0, min(2.0 * v_hi, limit) if v_hi > limit else v_hi
+        v_lo, v_hi = v_lo / 2.0, max(2.0 * v_hi, limit)
         g_lo, g_hi = g(v_lo)[0], g(v_hi)[0]
         if not g_lo < 0 <= g_hi:
             raise SolverError("breakdown_bias: the ionization integral does not cross 1 monotonically")
