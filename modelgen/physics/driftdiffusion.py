@@ -554,7 +554,8 @@ def _fluxes(m, psi, n, p):
     m : Mesh or _Stack
         Edge ``k`` joins the nodes ``m.lo[k]`` and ``m.hi[k]``.
     psi, n, p : numpy.ndarray
-        psi / Vt and the scaled densities at the nodes [-].
+        psi / Vt and the scaled densities at the nodes [-] (nodes along the
+        last axis; states of several biases as rows).
 
     Returns
     -------
@@ -568,13 +569,13 @@ def _fluxes(m, psi, n, p):
     """
     lo, hi = m.lo, m.hi
     pn, pp = psi + m.theta, psi - m.theta
-    dn = pn[hi] - pn[lo]
-    dp = pp[hi] - pp[lo]
+    dn = pn[..., hi] - pn[..., lo]
+    dp = pp[..., hi] - pp[..., lo]
     bn, dbn = bernoulli(dn)
     bnm, dbnm = bernoulli(-dn)
     bp, dbp = bernoulli(dp)
     bpm, dbpm = bernoulli(-dp)
-    n0, n1, p0, p1 = n[lo], n[hi], p[lo], p[hi]
+    n0, n1, p0, p1 = n[..., lo], n[..., hi], p[..., lo], p[..., hi]
     jn = m.an * (n1 * bn - n0 * bnm)
     jp = -m.ap * (p1 * bpm - p0 * bp)
     return dict(jn=jn, jp=jp,
@@ -971,50 +972,53 @@ class Solution:
         return degeneracy_warning(self.mesh)
 
 
-def _observe(m, u, bias, capacitance):
-    """Terminal current, mechanism split, field, charges (and dQ/dV) of one converged state (SI)."""
-    psi, n, p = u[:, 0], np.exp(u[:, 1]), np.exp(u[:, 2])
+def _observe(m, states, biases, capacitance):
+    """Terminal current, mechanism split, field, charges (and dQ/dV) of converged states (SI).
+
+    ``states`` (biases, nodes, 3) at ``biases`` [V]; ``capacitance`` a mask over
+    them. All biases at once: row by row the same numbers as one at a time.
+    """
+    psi, n, p = states[..., 0], np.exp(states[..., 1]), np.exp(states[..., 2])
     f = _fluxes(m, psi, n, p)
     srh, aug, _, _ = _recombination(m, n, p)
     jscale = Q * m.d0 * m.c0 / m.lref  # scaled flux -> A/m^2
     rscale = Q * m.c0 * m.d0 / m.lref  # box (scaled) * R (scaled) -> A/m^2
     c = m.c
     dep = ((c < 0) & (p < 0.5 * np.abs(c))) | ((c > 0) & (n < 0.5 * c))
-    dep[m.junction] = True
+    dep[:, m.junction] = True
     out = {
-        "srh_depletion": rscale * np.sum(m.box * srh * dep),
-        "srh_neutral": rscale * np.sum(m.box * srh * ~dep),
-        "auger": rscale * np.sum(m.box * aug),
-        "surface_p": jscale * (f["jn"][0] - m.box[0] * (srh[0] + aug[0])),
-        "surface_n": jscale * (f["jp"][-1] - m.box[-1] * (srh[-1] + aug[-1])),
+        "srh_depletion": rscale * np.sum(m.box * srh * dep, axis=-1),
+        "srh_neutral": rscale * np.sum(m.box * srh * ~dep, axis=-1),
+        "auger": rscale * np.sum(m.box * aug, axis=-1),
+        "surface_p": jscale * (f["jn"][:, 0] - m.box[0] * (srh[:, 0] + aug[:, 0])),
+        "surface_n": jscale * (f["jp"][:, -1] - m.box[-1] * (srh[:, -1] + aug[:, -1])),
     }
     # the terminal current as the sum of its parts: no cancellation of large majority fluxes
     j = sum(out.values())
     k = m.junction
-    j_junction = jscale * (f["jn"][k] + f["jp"][k])
-    vj = m.vt * (np.log(n[k] * p[k]) - 2.0 * np.log(m.nie[k]))
-    slope = np.diff(psi) / m.h
-    e = int(np.argmax(np.abs(slope)))
-    field = abs(slope[e]) * m.vt / m.lref
+    j_junction = jscale * (f["jn"][:, k] + f["jp"][:, k])
+    vj = m.vt * (np.log(n[:, k] * p[:, k]) - 2.0 * np.log(m.nie[k]))
+    slope = np.abs(np.diff(psi, axis=-1) / m.h)
+    peak = slope[np.arange(len(slope)), np.argmax(slope, axis=-1)]
+    field = peak * m.vt / m.lref
     eq = m.equilibrium
     ne, pe = np.exp(eq[:, 1]), np.exp(eq[:, 2])
     excess = np.where(c < 0, n - ne, p - pe) * ~dep
-    stored = Q * m.c0 * m.lref * np.sum(m.box * excess)
-    qscale = m.structure.permittivity * m.vt / m.lref
-    qdep = qscale * abs(slope[e])
-    cap = np.nan
-    if capacitance:
-        st = _stack_of([m])
-        _, ab = _system(st, u, [bias])
+    stored = Q * m.c0 * m.lref * np.sum(m.box * excess, axis=-1)
+    qdep = m.structure.permittivity * m.vt / m.lref * peak
+    cap = np.full(len(states), np.nan)
+    want = np.flatnonzero(capacitance)
+    if len(want):
+        # one stacked solve: the converged Jacobian of each state against d(psi0/Vt)/dV, the only
+        # bias-dependent equation
+        st = _stack_of([m] * len(want))
+        _, ab = _system(st, states[want].reshape(-1, 3), np.asarray(biases, float)[want])
         rhs = np.zeros(st.width)
-        rhs[st.pos[0]] = 1.0 / m.vt  # d(psi0/Vt)/dV: the only bias-dependent equation
-        du = _banded(ab, rhs)[st.rows].reshape(-1, 3)
+        rhs[st.pos[st.start]] = 1.0 / m.vt
+        du = _banded(ab, rhs)[st.rows].reshape(len(want), -1, 3)
         # the charge the n contact delivers: every electron in the device [C/m^2 per V]
-        cap = Q * m.c0 * m.lref * np.sum(m.box * n * du[:, 1]) * m.structure.area
+        cap[want] = Q * m.c0 * m.lref * np.sum(m.box * n[want] * du[:, :, 1], axis=-1) * m.structure.area
     return j, out, field, stored, qdep, cap, j_junction, vj
-
-
-_COMPONENTS = ("srh_depletion", "srh_neutral", "auger", "surface_p", "surface_n")
 
 
 def _continuation(m, v, want_c, max_step):
@@ -1032,10 +1036,8 @@ def _continuation(m, v, want_c, max_step):
             raise SolverError("no convergence at equilibrium")
         m.equilibrium = u
     nb, N = len(v), len(m.x)
-    res = dict(j=np.zeros(nb), jj=np.zeros(nb), vj=np.zeros(nb), field=np.zeros(nb), stored=np.zeros(nb),
-               qdep=np.zeros(nb), cap=np.zeros(nb), it=np.zeros(nb, int), psi=np.zeros((nb, N)),
-               n=np.zeros((nb, N)), p=np.zeros((nb, N)))
-    comps = {k: np.zeros(nb) for k in _COMPONENTS}
+    states = np.zeros((nb, N, 3))
+    res = {"it": np.zeros(nb, int)}
     for direction in (1.0, -1.0):
         sel = np.flatnonzero(v >= 0) if direction > 0 else np.flatnonzero(v < 0)
         order = sel[np.argsort(direction * v[sel], kind="stable")]
@@ -1067,15 +1069,12 @@ def _continuation(m, v, want_c, max_step):
                 # in reverse bias the solution changes smoothly with |V|: steps may grow to a fifth of it
                 cap = step_max if direction > 0 or max_step else max(step_max, 0.2 * abs(vn))
                 step = min(step * 1.5, cap)
-            u = hist[-1][1]
-            j, out, fld, st, qd, cp, jj, vj = _observe(m, u, target, want_c[k])
-            res["j"][k], res["field"][k], res["stored"][k], res["qdep"][k], res["cap"][k] = j, fld, st, qd, cp
-            res["jj"][k], res["vj"][k] = jj, vj
+            states[k] = hist[-1][1]
             res["it"][k] = its
-            res["psi"][k], res["n"][k], res["p"][k] = u[:, 0] * m.vt, np.exp(u[:, 1]) * m.c0, np.exp(u[:, 2]) * m.c0
-            for key in comps:
-                comps[key][k] = out[key]
-    return res, comps
+    j, out, fld, st, qd, cp, jj, vj = _observe(m, states, v, want_c)
+    res.update(j=j, field=fld, stored=st, qdep=qd, cap=cp, jj=jj, vj=vj, psi=states[..., 0] * m.vt,
+               n=np.exp(states[..., 1]) * m.c0, p=np.exp(states[..., 2]) * m.c0)
+    return res, out
 
 
 def _solution(structure, m, v, want_c, res, comps):
