@@ -485,12 +485,33 @@ def test_breakdown_refuses_a_forward_start():
         dd.breakdown_bias(dd.structure_from_result(r, 0), start=0.5)
 
 
-def test_a_singular_newton_step_is_a_failed_step():
-    """p+ n at 1e17 cm^-3 to -2 V: an early iterate left a singular Jacobian (LAPACK's error escaped);
-    it is now a failed step that is halved, and the depletion capacitance at -2 V is then the
-    abrupt junction's eps A / W within 1 % (Sze & Ng 2007, sec. 2.2-2.3)."""
+def singular_once(monkeypatch, when):
+    """Make LAPACK report a singular matrix (info > 0, as ?gbsv does) at the first call for which
+    ``when(ab)`` holds; returns the list of such reports."""
+    real = dd._gbsv
+    reported = []
+
+    def gbsv(kl, ku, ab, b, **kw):
+        if not reported and when(ab):
+            reported.append(ab.shape)
+            return ab, None, b, 1
+        return real(kl, ku, ab, b, **kw)
+
+    monkeypatch.setattr(dd, "_gbsv", gbsv)
+    return reported
+
+
+def test_a_singular_newton_step_is_a_failed_step(monkeypatch):
+    """A singular Jacobian at an early iterate (met by a p+ n 1e17 cm^-3 junction on its way to -2 V,
+    where LAPACK's error escaped; here made to happen by reporting the third solve singular) is a
+    failed step that is halved, and the depletion capacitance at -2 V is then the abrupt junction's
+    eps A / W within 1 % (Sze & Ng 2007, sec. 2.2-2.3)."""
     r = one_sided(1e17, 5)
-    sol = dd.solve(dd.structure_from_result(r, 0), [-2.0])
+    s = dd.structure_from_result(r, 0)
+    calls = []
+    reported = singular_once(monkeypatch, lambda ab: calls.append(1) or len(calls) == 3)
+    sol = dd.solve(s, [-2.0])
+    assert reported
     assert sol.capacitance[0] == pytest.approx(closed_c(r, -2.0), rel=1e-2)
 
 
@@ -530,22 +551,16 @@ def test_solve_many_takes_a_bias_list_per_device():
 
 
 def test_solve_many_redoes_a_singular_stack_device_by_device(monkeypatch):
-    """The p+ n 1e17 cm^-3 junction meets a singular Jacobian on its way to -2 V (see above); in a stack
-    with a healthy device the stacked solve fails, each device is redone alone, and both still equal
-    their single solves byte for byte (common practice: one device's trouble stays its own)."""
-    calls = []
-    alone_step = dd._alone
-
-    def counted(*args):
-        calls.append(1)
-        return alone_step(*args)
-
-    sick = dd.structure_from_result(one_sided(1e17, 5), 0)
-    healthy = dd.structure_from_result(derive(20, 50, 1), 0)
-    singles = [dd.solve(s, [-2.0]) for s in (sick, healthy)]
-    monkeypatch.setattr(dd, "_alone", counted)
-    both = dd.solve_many([sick, healthy], [-2.0])
-    assert calls
+    """When LAPACK finds the stacked matrix singular (one device's trouble), each device of the stack
+    is redone alone, and both devices still equal their single solves byte for byte (common practice:
+    one device's trouble stays its own)."""
+    first = dd.structure_from_result(one_sided(1e17, 5), 0)
+    second = dd.structure_from_result(derive(20, 50, 1), 0)
+    singles = [dd.solve(s, [-2.0]) for s in (first, second)]
+    single_width = 3 * len(singles[0].mesh.x) + 2 * dd._SPACER
+    reported = singular_once(monkeypatch, lambda ab: ab.shape[1] > single_width + 3 * len(singles[1].mesh.x))
+    both = dd.solve_many([first, second], [-2.0])
+    assert reported
     for a, b in zip(singles, both):
         assert np.array_equal(a.psi, b.psi) and np.array_equal(a.n, b.n) and np.array_equal(a.p, b.p)
         assert np.array_equal(a.current, b.current) and np.array_equal(a.capacitance, b.capacitance)

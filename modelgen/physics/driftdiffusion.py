@@ -506,6 +506,20 @@ def bernoulli(x):
     return b, db
 
 
+def _bernoulli_both(x):
+    """B(x), B'(x), B(-x), B'(-x) from one evaluation at |x| (B(-a) = B(a) + a, B'(-a) = -1 - B'(a)).
+
+    For a >= 0 both identities add numbers of one sign (B(a) in (0, 1], B'(a) in
+    [-1/2, 0)), so nothing cancels; see :func:`bernoulli`.
+    """
+    a = np.abs(x)
+    b, db = bernoulli(a)
+    b_neg, db_neg = b + a, -1.0 - db
+    pos = x >= 0
+    return (np.where(pos, b, b_neg), np.where(pos, db, db_neg),
+            np.where(pos, b_neg, b), np.where(pos, db_neg, db))
+
+
 def _recombination(m, n, p):
     """Net recombination rates and their derivatives, in the mesh's scaled units.
 
@@ -571,10 +585,8 @@ def _fluxes(m, psi, n, p):
     pn, pp = psi + m.theta, psi - m.theta
     dn = pn[..., hi] - pn[..., lo]
     dp = pp[..., hi] - pp[..., lo]
-    bn, dbn = bernoulli(dn)
-    bnm, dbnm = bernoulli(-dn)
-    bp, dbp = bernoulli(dp)
-    bpm, dbpm = bernoulli(-dp)
+    bn, dbn, bnm, dbnm = _bernoulli_both(dn)
+    bp, dbp, bpm, dbpm = _bernoulli_both(dp)
     n0, n1, p0, p1 = n[..., lo], n[..., hi], p[..., lo], p[..., hi]
     jn = m.an * (n1 * bn - n0 * bnm)
     jp = -m.ap * (p1 * bpm - p0 * bp)
@@ -1015,9 +1027,11 @@ def _observe(m, states, biases, capacitance):
         _, ab = _system(st, states[want].reshape(-1, 3), np.asarray(biases, float)[want])
         rhs = np.zeros(st.width)
         rhs[st.pos[st.start]] = 1.0 / m.vt
-        du = _banded(ab, rhs)[st.rows].reshape(len(want), -1, 3)
-        # the charge the n contact delivers: every electron in the device [C/m^2 per V]
-        cap[want] = Q * m.c0 * m.lref * np.sum(m.box * n[want] * du[:, :, 1], axis=-1) * m.structure.area
+        du = _banded(ab, rhs)
+        if du is not None:  # (a converged state's Jacobian is not singular; if it were, C stays NaN)
+            du = du[st.rows].reshape(len(want), -1, 3)
+            # the charge the n contact delivers: every electron in the device [C/m^2 per V]
+            cap[want] = Q * m.c0 * m.lref * np.sum(m.box * n[want] * du[:, :, 1], axis=-1) * m.structure.area
     return j, out, field, stored, qdep, cap, j_junction, vj
 
 
