@@ -25,6 +25,18 @@ The coupled system is solved by Newton's method on the banded Jacobian
 (bandwidth 5 in the interleaved ordering), updates larger than one unit
 (Vt for psi, a factor e for the densities) damped logarithmically, with bias
 continuation from equilibrium (linear predictor, step halving on failure).
+:func:`solve_many` solves many devices at once: each follows its own
+continuation, and their Newton steps run as one band matrix (the blocks
+stacked along the diagonal, no coupling); :func:`solve` is the same code for
+one device, and gives the same bytes.
+
+From a structure made by :func:`structure_from_result` the solver sees the
+closed forms' parameters: each side's minority lifetime in its neutral region
+and the recombination lifetime in the depletion region at the reference bias,
+and the contact resistance (:attr:`Solution.terminal_bias`).
+:attr:`Solution.degenerate` warns where Boltzmann statistics no longer hold;
+:func:`breakdown_bias` finds avalanche breakdown from the ionization integral
+over the solver's field.
 
 Recombination: Shockley-Read-Hall with a midgap trap (n1 = p1 = ni_eff),
 R = (n p - ni_eff^2) / (tau_p (n + ni_eff) + tau_n (p + ni_eff)), plus
@@ -53,13 +65,16 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.linalg import solve_banded
+from scipy.linalg.lapack import dgbsv as _gbsv
 
 from ..constants import EPS0, Q, thermal_voltage
 from ..materials import silicon
+from . import breakdown as _breakdown
 from . import profiles as _profiles
 
 _BAND = 5  # half-bandwidth of the interleaved (psi, ln n, ln p) Jacobian
+_DIAG = 2 * _BAND  # row of the diagonal in LAPACK's band storage for ?gbsv (kl rows for the fill-in on top)
+_LDAB = 3 * _BAND + 1
 
 
 class SolverError(RuntimeError):
@@ -96,6 +111,11 @@ class Structure:
     features : tuple of float
         Positions where the mesh is graded finely besides the junctions
         (depletion edges) [m].
+    contact_resistance : float
+        Series resistance of the contacts and leads outside the 1-D device
+        [ohm] (default 0); enters only :attr:`Solution.terminal_bias`. The
+        neutral regions' own resistance, conductivity modulation included, is
+        already in the solution.
     """
 
     profile: _profiles.Profile
@@ -113,12 +133,23 @@ class Structure:
     auger_n: float = silicon.AUGER_CN
     auger_p: float = silicon.AUGER_CP
     features: tuple = ()
+    contact_resistance: float = 0.0
 
 
 def _piecewise(xj, left, right):
     """x -> left for x < xj, right beyond (scalars)."""
     left, right = float(left), float(right)
     return lambda x: np.where(np.asarray(x) < xj, left, right)
+
+
+def _three_regions(x0, x1, left, middle, right):
+    """x -> left for x < x0, middle for x0 <= x <= x1, right beyond (scalars)."""
+    left, middle, right = float(left), float(middle), float(right)
+
+    def f(x):
+        x = np.asarray(x)
+        return np.where(x < x0, left, np.where(x <= x1, middle, right))
+    return f
 
 
 def _srh_part(tau, auger, majority):
@@ -139,11 +170,22 @@ def structure_from_result(result, i, auger=True):
     the closed forms' mobilities (electrons in the p side with the p side's
     minority mobility, in the n side with the n side's majority mobility;
     holes alike), ni, each side's band-gap narrowing, temperature, junction
-    area (bottom plus sidewall) and contact velocities. Each side's lifetime
-    is the closed forms' minority-carrier lifetime: with ``auger`` the SRH
+    area (bottom plus sidewall), contact velocities and the contact resistance
+    (``contact_resistance``, NaN or absent = 0). Each side's neutral region
+    has the closed forms' minority-carrier lifetime: with ``auger`` the SRH
     lifetime is reduced so that SRH and Auger together give it at low
     injection (1/tau_SRH = 1/tau - C N^2), the same lifetime used for both
     carriers on that side.
+
+    The depletion region has the closed forms' recombination lifetime
+    (``derived["recombination_lifetime"]``: the user's
+    ``recombination_lifetime``, default the lighter side's lifetime) as the
+    SRH lifetime of both carriers, the lifetime of their Sah-Noyce-Shockley
+    current. Its extent is the one the closed forms use to separate depletion
+    from neutral regions: the depletion extents at the reference bias on each
+    side (thickness less neutral width), so that every point of the device
+    has the lifetime the closed forms give it. Auger is not taken out of it
+    (the carriers there are far below the doping).
 
     Parameters
     ----------
@@ -175,8 +217,12 @@ def structure_from_result(result, i, auger=True):
     cn, cp = (silicon.AUGER_CN, silicon.AUGER_CP) if auger else (0.0, 0.0)
     tau_p_side = _srh_part(float(p["lifetime"][i]), cp, na)
     tau_n_side = _srh_part(float(n["lifetime"][i]), cn, nd)
-    tau = _piecewise(xj, tau_p_side, tau_n_side)
-    features = (xj - float(p["depletion_extent"][i]), xj + float(n["depletion_extent"][i]))
+    # the depletion region at the reference bias: the closed forms' neutral regions begin at its edges
+    x_lo = xj - (tp - float(p["neutral_width"][i]))
+    x_hi = xj + (tn - float(n["neutral_width"][i]))
+    tau = _three_regions(x_lo, x_hi, tau_p_side, float(d["recombination_lifetime"][i]), tau_n_side)
+    features = (xj - float(p["depletion_extent"][i]), xj + float(n["depletion_extent"][i]), x_lo, x_hi)
+    rc = float(getattr(dev, "contact_resistance", np.full(i + 1, np.nan))[i])
     return Structure(
         profile=prof, temperature=float(d["temperature"][i]), ni=float(d["ni"][i]),
         permittivity=float(dev.relative_permittivity[i]) * EPS0, area=float(d["junction_area"][i]),
@@ -185,7 +231,8 @@ def structure_from_result(result, i, auger=True):
         electron_lifetime=tau, hole_lifetime=tau,
         bandgap_narrowing=_piecewise(xj, p["bandgap_narrowing"][i], n["bandgap_narrowing"][i]),
         velocity_p=float(p["contact_velocity"][i]), velocity_n=float(n["contact_velocity"][i]),
-        auger_n=cn, auger_p=cp, features=features)
+        auger_n=cn, auger_p=cp, features=tuple(sorted(set(features))),
+        contact_resistance=rc if np.isfinite(rc) else 0.0)
 
 
 def structure_from_profile(profile, area, temperature=300.0, lifetimes=None, velocities=(np.inf, np.inf),
@@ -266,8 +313,9 @@ class Mesh:
     """Nodes and the material values on them, scaled for the solver.
 
     Node quantities are averaged over the two halves of each node's box (a
-    jump at a node is integrated exactly); edge quantities are taken at the
-    edge midpoints. Scaled units: lengths by ``lref``, densities by ``c0``,
+    jump at a node is integrated exactly; lifetimes through their rates 1/tau,
+    harmonically, an infinite SRH lifetime being a zero rate); edge
+    quantities are taken at the edge midpoints. Scaled units: lengths by ``lref``, densities by ``c0``,
     potentials by ``vt``, diffusivities by ``d0``.
     """
 
@@ -293,7 +341,16 @@ class Mesh:
     ln_ni: float  # ln(ni / c0)
     junction: int  # node index of the (first) junction
     equilibrium: np.ndarray | None = field(default=None, repr=False)
-    jacobian_index: np.ndarray | None = field(default=None, repr=False)  # flat band positions, made once
+
+    @property
+    def lo(self):
+        """Node index at the left end of each edge."""
+        return np.arange(len(self.x) - 1)
+
+    @property
+    def hi(self):
+        """Node index at the right end of each edge."""
+        return np.arange(1, len(self.x))
 
 
 def _spacing(x, features, refine, grading, hmax):
@@ -379,6 +436,10 @@ def make_mesh(structure, refine=1.0, grading=0.08, points=30, reverse_to=0.0, su
     return _discretise(s, x, vt, c0)
 
 
+#: The SRH lifetime standing for none [s] (a rate of 1e-20 /s: nothing at any bias).
+_NO_SRH = 1e20
+
+
 def _discretise(s, x, vt, c0):
     """Material values on the nodes and edges of ``x``, scaled (see :class:`Mesh`)."""
     prof = s.profile
@@ -390,6 +451,12 @@ def _discretise(s, x, vt, c0):
 
     def node(f):
         return (left * f(x - delta) + right * f(x + delta)) / box
+
+    def node_lifetime(f):
+        # the rate 1/tau is what the box integrates; inf (no SRH: Auger alone gives the lifetime) has rate 0,
+        # and is kept finite (1e20 s) so that the SRH derivatives stay numbers
+        with np.errstate(divide="ignore"):
+            return np.minimum(box / (left / f(x - delta) + right / f(x + delta)), _NO_SRH)
 
     mid = 0.5 * (x[1:] + x[:-1])
     mu_n, mu_p = s.electron_mobility(mid), s.hole_mobility(mid)
@@ -405,8 +472,8 @@ def _discretise(s, x, vt, c0):
         sn, sp = s.velocity_p * lref / d0, s.velocity_n * lref / d0
     return Mesh(structure=s, x=x, vt=vt, c0=c0, lref=lref, d0=d0, h=h / lref, box=box / lref,
                 c=node(prof) / c0, nie=nie, theta=theta, an=(mu_n / mumax) / (h / lref),
-                ap=(mu_p / mumax) / (h / lref), tau_n=node(s.electron_lifetime) * t_scale,
-                tau_p=node(s.hole_lifetime) * t_scale, cn=s.auger_n * c0**2 * lref**2 / d0,
+                ap=(mu_p / mumax) / (h / lref), tau_n=node_lifetime(s.electron_lifetime) * t_scale,
+                tau_p=node_lifetime(s.hole_lifetime) * t_scale, cn=s.auger_n * c0**2 * lref**2 / d0,
                 cp=s.auger_p * c0**2 * lref**2 / d0, sn=sn, sp=sp, ln_ni=float(np.log(s.ni / c0)),
                 junction=jn)
 
@@ -437,6 +504,20 @@ def bernoulli(x):
     b = np.where(xs > 700.0, 0.0, b)
     db = np.where(small, -0.5 + x / 6.0, (b / xs) * (1.0 - b - xs))
     return b, db
+
+
+def _bernoulli_both(x):
+    """B(x), B'(x), B(-x), B'(-x) from one evaluation at |x| (B(-a) = B(a) + a, B'(-a) = -1 - B'(a)).
+
+    For a >= 0 both identities add numbers of one sign (B(a) in (0, 1], B'(a) in
+    [-1/2, 0)), so nothing cancels; see :func:`bernoulli`.
+    """
+    a = np.abs(x)
+    b, db = bernoulli(a)
+    b_neg, db_neg = b + a, -1.0 - db
+    pos = x >= 0
+    return (np.where(pos, b, b_neg), np.where(pos, db, db_neg),
+            np.where(pos, b_neg, b), np.where(pos, db_neg, db))
 
 
 def _recombination(m, n, p):
@@ -484,9 +565,11 @@ def _fluxes(m, psi, n, p):
 
     Parameters
     ----------
-    m : Mesh
+    m : Mesh or _Stack
+        Edge ``k`` joins the nodes ``m.lo[k]`` and ``m.hi[k]``.
     psi, n, p : numpy.ndarray
-        psi / Vt and the scaled densities at the nodes [-].
+        psi / Vt and the scaled densities at the nodes [-] (nodes along the
+        last axis; states of several biases as rows).
 
     Returns
     -------
@@ -498,13 +581,13 @@ def _fluxes(m, psi, n, p):
     ----------
     Scharfetter & Gummel, IEEE TED 16, 64 (1969); Selberherr (1984), ch. 6.
     """
-    dn = np.diff(psi + m.theta)
-    dp = np.diff(psi - m.theta)
-    bn, dbn = bernoulli(dn)
-    bnm, dbnm = bernoulli(-dn)
-    bp, dbp = bernoulli(dp)
-    bpm, dbpm = bernoulli(-dp)
-    n0, n1, p0, p1 = n[:-1], n[1:], p[:-1], p[1:]
+    lo, hi = m.lo, m.hi
+    pn, pp = psi + m.theta, psi - m.theta
+    dn = pn[..., hi] - pn[..., lo]
+    dp = pp[..., hi] - pp[..., lo]
+    bn, dbn, bnm, dbnm = _bernoulli_both(dn)
+    bp, dbp, bpm, dbpm = _bernoulli_both(dp)
+    n0, n1, p0, p1 = n[..., lo], n[..., hi], p[..., lo], p[..., hi]
     jn = m.an * (n1 * bn - n0 * bnm)
     jp = -m.ap * (p1 * bpm - p0 * bp)
     return dict(jn=jn, jp=jp,
@@ -512,125 +595,285 @@ def _fluxes(m, psi, n, p):
                 jp_psi=m.ap * (p1 * dbpm + p0 * dbp), jp_p1=-m.ap * bpm * p1, jp_p0=m.ap * bp * p0)
 
 
-def _boundary(m, bias):
-    """Scaled contact values: psi/Vt, ln n, ln p at x = 0 (bias V) and x = L (grounded)."""
-    out = []
-    for k, v in ((0, bias), (-1, 0.0)):
-        c, nie = m.c[k], m.nie[k]
-        half = 0.5 * abs(c)
-        maj = half + np.sqrt(half * half + nie * nie)
-        mnr = nie * nie / maj
-        n, p = (maj, mnr) if c > 0 else (mnr, maj)
-        psi = np.log(n) - m.ln_ni - m.theta[k] + v / m.vt
-        out.append((psi, np.log(n), np.log(p)))
-    return out
+#: Identity rows around every device's block in the stacked band matrix: at least kl + ku, so that
+#: LAPACK's elimination and substitution steps have the same lengths for a device alone and in a stack.
+_SPACER = 2 * _BAND
 
 
-def _system(m, u, bias):
-    """Residual F and banded Jacobian (solve_banded layout, l = u = 5) at the state ``u`` (N, 3)."""
+class _Stack:
+    """Several meshes as one system: node and edge arrays end to end, rows with spacers.
+
+    Device k's unknowns (psi, ln n, ln p per node) are the rows
+    ``pos[node] + (0, 1, 2)`` of one banded matrix, its block preceded and the
+    last block followed by :data:`_SPACER` identity rows with zero coupling, so
+    that every block is factorised with operations of the same lengths
+    whatever its neighbours: one device alone is a stack of one.
+    """
+
+    def __init__(self, meshes):
+        self.meshes = list(meshes)
+        ms = self.meshes
+        sizes = np.array([len(m.x) for m in ms])
+        start = np.concatenate([[0], np.cumsum(sizes)[:-1]])
+        cat = np.concatenate
+        self.sizes, self.start, self.last = sizes, start, start + sizes - 1
+        for name in ("box", "c", "nie", "theta", "tau_n", "tau_p"):
+            setattr(self, name, cat([getattr(m, name) for m in ms]))
+        for name in ("h", "an", "ap"):
+            setattr(self, name, cat([getattr(m, name) for m in ms]))
+        self.cn = cat([np.full(len(m.x), m.cn) for m in ms])
+        self.cp = cat([np.full(len(m.x), m.cp) for m in ms])
+        self.lo = cat([np.arange(len(m.x) - 1) + s for m, s in zip(ms, start)])
+        self.hi = self.lo + 1
+        for name in ("vt", "ln_ni", "sn", "sp"):
+            setattr(self, name, np.array([getattr(m, name) for m in ms], float))
+        total = int(sizes.sum())
+        device = np.repeat(np.arange(len(ms)), sizes)
+        self.pos = 3 * np.arange(total) + _SPACER * (device + 1)
+        self.width = 3 * total + _SPACER * (len(ms) + 1)
+        self.rows = (self.pos[:, None] + np.arange(3)).ravel()
+        spacer = np.ones(self.width, bool)
+        spacer[self.rows] = False
+        self.spacer = np.flatnonzero(spacer)
+        self.row_start = 3 * start + _SPACER * (np.arange(len(ms)) + 1)  # first row of each block
+        self.flat = None  # band positions of the Jacobian entries, made at the first assembly
+        self.contact = None  # contact values without the bias (_boundary)
+        self.bc = None  # positions of the contact conditions (_contact_rows)
+
+
+_STACKS = {}
+
+
+def _stack_of(meshes):
+    """The :class:`_Stack` of these meshes (kept for reuse: active sets repeat from step to step)."""
+    key = tuple(id(m) for m in meshes)
+    st = _STACKS.get(key)
+    if st is None or any(a is not b for a, b in zip(st.meshes, meshes)):
+        if len(_STACKS) > 256:
+            _STACKS.clear()
+        st = _STACKS[key] = _Stack(meshes)
+    return st
+
+
+def _boundary(st, bias):
+    """Scaled contact values per device: psi/Vt, ln n, ln p at x = 0 (bias V) and x = L (grounded)."""
+    if st.contact is None:
+        st.contact = []
+        for k in (st.start, st.last):
+            c, nie = st.c[k], st.nie[k]
+            half = 0.5 * np.abs(c)
+            maj = half + np.sqrt(half * half + nie * nie)
+            mnr = nie * nie / maj
+            n, p = np.where(c > 0, maj, mnr), np.where(c > 0, mnr, maj)
+            st.contact.append((np.log(n) - st.ln_ni - st.theta[k], np.log(n), np.log(p)))
+    (b0, n0, p0), (bl, nl, pl) = st.contact
+    return (b0 + bias / st.vt, n0, p0), (bl + 0.0 / st.vt, nl, pl)
+
+
+def _contact_rows(st):
+    """Row and band positions of the contact conditions of a stack, made once.
+
+    Dirichlet rows: psi and ln p at x = 0, psi and ln n at x = L, and the minority
+    rows of ideal contacts (S = inf); Robin rows: the minority rows of the others.
+    """
+    if st.bc is None:
+        offsets = np.arange(-_BAND, _BAND + 1)
+        ideal_0, ideal_l = np.isinf(st.sn), np.isinf(st.sp)
+        dir_nodes = [st.start, st.start, st.last, st.last, st.start[ideal_0], st.last[ideal_l]]
+        dir_comps = [0, 2, 0, 1, 1, 2]
+        nodes = np.concatenate(dir_nodes)
+        comps = np.concatenate([np.full(len(x), c) for x, c in zip(dir_nodes, dir_comps)])
+        r = st.pos[nodes] + comps
+        band = (_DIAG - offsets[None, :] + 0 * r[:, None]).ravel(), (r[:, None] + offsets[None, :]).ravel()
+        rob = []
+        for node, comp, s, sign, keep in ((st.start, 1, st.sn, -1.0, ~ideal_0), (st.last, 2, st.sp, 1.0, ~ideal_l)):
+            nk, sk = node[keep], s[keep]
+            rr = st.pos[nk] + comp
+            rob.append({"node": nk, "comp": comp, "rows": rr, "a": 1.0 / (1.0 + sk), "b": sk / (1.0 + sk),
+                        "sign": sign, "keep": keep,
+                        "band": ((_DIAG - offsets[None, :] + 0 * rr[:, None]).ravel(),
+                                 (rr[:, None] + offsets[None, :]).ravel())})
+        st.bc = {"rows": r, "nodes": nodes, "comps": comps, "band": band, "robin": rob}
+    return st.bc
+
+
+def _system(st, u, bias):
+    """Residual F (width,) and banded Jacobian (LAPACK ?gbsv layout, kl = ku = 5) of a stack at the state ``u``.
+
+    ``u`` is (nodes of all devices, 3); ``bias`` one value per device.
+    """
     psi, ln_n, ln_p = u[:, 0], u[:, 1], u[:, 2]
     n, p = np.exp(ln_n), np.exp(ln_p)
     N = len(psi)
-    f = _fluxes(m, psi, n, p)
-    srh, aug, dr_n, dr_p = _recombination(m, n, p)
+    f = _fluxes(st, psi, n, p)
+    srh, aug, dr_n, dr_p = _recombination(st, n, p)
     r = srh + aug
+    lo, hi = st.lo, st.hi
     F = np.zeros((N, 3))
-    inv_h = 1.0 / m.h
-    e = np.diff(psi) * inv_h
-    F[:, 0] = m.box * (p - n + m.c)
-    F[:-1, 0] += e
-    F[1:, 0] -= e
-    F[:, 1] = -m.box * r
-    F[:-1, 1] += f["jn"]
-    F[1:, 1] -= f["jn"]
-    F[:, 2] = m.box * r
-    F[:-1, 2] += f["jp"]
-    F[1:, 2] -= f["jp"]
+    inv_h = 1.0 / st.h
+    e = (psi[hi] - psi[lo]) * inv_h
+    F[:, 0] = st.box * (p - n + st.c)
+    F[lo, 0] += e
+    F[hi, 0] -= e
+    F[:, 1] = -st.box * r
+    F[lo, 1] += f["jn"]
+    F[hi, 1] -= f["jn"]
+    F[:, 2] = st.box * r
+    F[lo, 2] += f["jp"]
+    F[hi, 2] -= f["jp"]
 
-    # Jacobian entries as (row node, row eq, col node, col var, value), summed into the band
-    # layout by one bincount over flat indices cached per mesh
+    # Jacobian entries as (row node, row eq, col node, col var, value), summed into the band layout by
+    # one bincount over flat indices made once per stack; entries of one kind for all devices in turn,
+    # so that each band position sums its parts in the same order for a device alone and in a stack
     idx = np.arange(N)
-    lo, hi = idx[:-1], idx[1:]
     jn_psi, jp_psi = f["jn_psi"], f["jp_psi"]
     entries = [
         # Poisson
-        (idx, 0, idx, 1, -m.box * n), (idx, 0, idx, 2, m.box * p),
+        (idx, 0, idx, 1, -st.box * n), (idx, 0, idx, 2, st.box * p),
         (lo, 0, lo, 0, -inv_h), (lo, 0, hi, 0, inv_h), (hi, 0, hi, 0, -inv_h), (hi, 0, lo, 0, inv_h),
         # electrons: row i gets +jn(edge i) - jn(edge i-1) - box R
-        (idx, 1, idx, 1, -m.box * dr_n * n), (idx, 1, idx, 2, -m.box * dr_p * p),
+        (idx, 1, idx, 1, -st.box * dr_n * n), (idx, 1, idx, 2, -st.box * dr_p * p),
         # holes: row i gets +jp(edge i) - jp(edge i-1) + box R
-        (idx, 2, idx, 1, m.box * dr_n * n), (idx, 2, idx, 2, m.box * dr_p * p),
+        (idx, 2, idx, 1, st.box * dr_n * n), (idx, 2, idx, 2, st.box * dr_p * p),
     ]
     for sign, rows in ((1.0, lo), (-1.0, hi)):
         entries += [(rows, 1, hi, 0, sign * jn_psi), (rows, 1, lo, 0, -sign * jn_psi),
                     (rows, 1, hi, 1, sign * f["jn_n1"]), (rows, 1, lo, 1, sign * f["jn_n0"]),
                     (rows, 2, hi, 0, sign * jp_psi), (rows, 2, lo, 0, -sign * jp_psi),
                     (rows, 2, hi, 2, sign * f["jp_p1"]), (rows, 2, lo, 2, sign * f["jp_p0"])]
-    flat = m.jacobian_index
-    if flat is None:
-        width = 3 * N
+    width = st.width
+    if st.flat is None:
         parts = []
         for rn, rc, cn, cc, _ in entries:
-            rr, col = 3 * rn + rc, 3 * cn + cc
-            parts.append((_BAND + rr - col) * width + col)
-        flat = m.jacobian_index = np.concatenate(parts)
+            rr, col = st.pos[rn] + rc, st.pos[cn] + cc
+            parts.append(col * _LDAB + _DIAG + rr - col)  # column-major: LAPACK's own layout, no copies
+        st.flat = np.concatenate(parts)
     vals = np.concatenate([e[4] for e in entries])
-    ab = np.bincount(flat, weights=vals, minlength=(2 * _BAND + 1) * 3 * N).reshape(2 * _BAND + 1, 3 * N)
+    ab = np.bincount(st.flat, weights=vals, minlength=_LDAB * width).reshape(width, _LDAB).T
+    ab[_DIAG, st.spacer] = 1.0
+    b = np.zeros(width)
+    b[st.rows] = F.ravel()
 
-    (psi0, lnn0, lnp0), (psil, lnnl, lnpl) = _boundary(m, bias)
-
-    def dirichlet(node, comp, value):
-        r = 3 * node + comp
-        for col in range(max(r - _BAND, 0), min(r + _BAND, 3 * N - 1) + 1):
-            ab[_BAND + r - col, col] = 0.0
-        ab[_BAND, r] = 1.0
-        F[node, comp] = u[node, comp] - value
-
-    def robin(node, comp, s, ln_eq, sign):
-        # a * (flux balance of the half box) + sign * b * (density - equilibrium)
-        if np.isinf(s):
-            dirichlet(node, comp, ln_eq)
-            return
-        a, b = 1.0 / (1.0 + s), s / (1.0 + s)
-        r = 3 * node + comp
-        for col in range(max(r - _BAND, 0), min(r + _BAND, 3 * N - 1) + 1):
-            ab[_BAND + r - col, col] *= a
-        dens = np.exp(u[node, comp])
-        ab[_BAND, r] += sign * b * dens
-        F[node, comp] = a * F[node, comp] + sign * b * (dens - np.exp(ln_eq))
-
-    dirichlet(0, 0, psi0)
-    dirichlet(0, 2, lnp0)
-    robin(0, 1, m.sn, lnn0, -1.0)  # Jn(1/2) - box R - S (n - n0) = 0
-    dirichlet(N - 1, 0, psil)
-    dirichlet(N - 1, 1, lnnl)
-    robin(N - 1, 2, m.sp, lnpl, 1.0)  # -Jp(N-3/2) + box R + S (p - p0) = 0
-    return F.ravel(), ab
+    (psi0, lnn0, lnp0), (psil, lnnl, lnpl) = _boundary(st, np.asarray(bias, float))
+    bc = _contact_rows(st)
+    ideal_0, ideal_l = np.isinf(st.sn), np.isinf(st.sp)
+    values = np.concatenate([psi0, lnp0, psil, lnnl, lnn0[ideal_0], lnpl[ideal_l]])
+    r = bc["rows"]
+    ab[bc["band"]] = 0.0
+    ab[_DIAG, r] = 1.0
+    b[r] = u[bc["nodes"], bc["comps"]] - values
+    # Robin rows: a * (flux balance of the half box) + sign * b * (density - equilibrium);
+    # Jn(1/2) - box R - S (n - n0) = 0 at x = 0, -Jp(N-3/2) + box R + S (p - p0) = 0 at x = L
+    for rb, ln_eq in zip(bc["robin"], (lnn0, lnpl)):
+        if not len(rb["rows"]):
+            continue
+        rr, a = rb["rows"], rb["a"]
+        ab[rb["band"]] *= np.repeat(a, 2 * _BAND + 1)
+        dens = np.exp(u[rb["node"], rb["comp"]])
+        ab[_DIAG, rr] += rb["sign"] * rb["b"] * dens
+        b[rr] = a * b[rr] + rb["sign"] * rb["b"] * (dens - np.exp(ln_eq[rb["keep"]]))
+    return b, ab
 
 
-def _newton(m, u, bias, tol=1e-9, maxit=40):
-    """Damped Newton iterations from ``u``; returns (u, iterations) or (None, iterations).
+def _banded(ab, rhs):
+    """LAPACK ?gbsv on a stack's band matrix (consumed: overwritten by its factors); None if singular."""
+    _, _, x, info = _gbsv(_BAND, _BAND, ab, rhs, overwrite_ab=1, overwrite_b=1)
+    if info > 0:
+        return None
+    if info < 0:
+        raise ValueError(f"gbsv: argument {-info} invalid")
+    return x
+
+
+def _drive(meshes, tasks, tol=1e-9):
+    """Run devices' tasks to the end, all their Newton iterations in stacked banded solves.
+
+    ``tasks[k]`` is a generator for ``meshes[k]`` that yields Newton requests
+    (starting state (N_k, 3), bias [V], iteration limit) and is sent back
+    (state or None, iterations) for each. At every iteration all devices with a
+    request run together as one band matrix; a device whose Newton solve ends
+    (converged or failed) is handed its result at once and joins the next
+    iteration with its next request, so the stack stays full until devices
+    finish. Each device converges, is damped and stops on its own numbers
+    alone, and a singular or non-finite stacked solve is redone device by
+    device: a device's iterates are the same alone and in any company.
 
     Converged when the largest update (psi/Vt, ln n, ln p) is below ``tol``, or
     below 100 tol twice running: in a heavily doped region the minority
     density's logarithm carries rounding noise of about 1e-9 that no iteration
     removes (its carriers are 1e-40 of the majority), harmless to every result.
+
+    Returns
+    -------
+    list
+        Per device, ('done', the generator's return value) or ('error', the
+        SolverError it raised).
     """
-    u = u.copy()
-    last = np.inf
-    for it in range(1, maxit + 1):
-        F, ab = _system(m, u, bias)
-        du = solve_banded((_BAND, _BAND), ab, -F, overwrite_ab=True, overwrite_b=True, check_finite=False)
-        if not np.all(np.isfinite(du)):
-            return None, it
+    out = [None] * len(meshes)
+    jobs = {}  # device -> [state, bias, iteration limit, iterations, last update size]
+
+    def advance(k, value):
+        try:
+            guess, bias, maxit = tasks[k].send(value)
+        except StopIteration as stop:
+            jobs.pop(k, None)
+            out[k] = ("done", stop.value)
+        except SolverError as exc:
+            jobs.pop(k, None)
+            out[k] = ("error", exc)
+        else:
+            jobs[k] = [np.array(guess, float, copy=True), float(bias), int(maxit), 0, np.inf]
+
+    for k in range(len(meshes)):
+        advance(k, None)
+    while jobs:
+        ks = list(jobs)
+        st = _stack_of([meshes[k] for k in ks])
+        F, ab = _system(st, np.concatenate([jobs[k][0] for k in ks]), np.array([jobs[k][1] for k in ks]))
+        du = _banded(ab, -F)
+        if du is None or not np.all(np.isfinite(du)):
+            # one device's trouble must not touch the others: each solved alone (the same operations)
+            du = np.concatenate([_alone(meshes[k], jobs[k][0], jobs[k][1]) for k in ks])
+        else:
+            du = du[st.rows].reshape(-1, 3)
         big = np.abs(du) > 1.0
         du = np.where(big, np.sign(du) * (1.0 + np.log(np.where(big, np.abs(du), 1.0))), du)
-        u += du.reshape(-1, 3)
-        size = np.max(np.abs(du))
-        if size < tol or max(size, last) < 100 * tol:
-            return u, it
-        last = size
-    return None, maxit
+        for j, k in enumerate(ks):
+            job = jobs[k]
+            job[3] += 1
+            it = job[3]
+            d = du[st.start[j]:st.last[j] + 1]
+            if not np.all(np.isfinite(d)):
+                advance(k, (None, it))
+                continue
+            job[0] += d
+            size = np.max(np.abs(d))
+            if size < tol or max(size, job[4]) < 100 * tol:
+                advance(k, (job[0], it))
+            elif it >= job[2]:
+                advance(k, (None, it))
+            else:
+                job[4] = size
+    return out
+
+
+def _newton_many(meshes, requests, tol=1e-9):
+    """Damped Newton solves of several devices at once (see :func:`_drive`): one request
+    (starting state, bias [V], iteration limit) per mesh; returns (state or None, iterations) each."""
+    def one(request):
+        return (yield request)
+
+    return [r[1] for r in _drive(meshes, [one(r) for r in requests], tol)]
+
+
+def _alone(m, u, bias):
+    """One device's Newton update as a stack of one (NaN where singular)."""
+    st = _stack_of([m])
+    F, ab = _system(st, u, [bias])
+    du = _banded(ab, -F)
+    if du is None:
+        return np.full((len(m.x), 3), np.nan)
+    return du[st.rows].reshape(-1, 3)
 
 
 def _neutral_guess(m):
@@ -642,6 +885,11 @@ def _neutral_guess(m):
     p = np.where(m.c > 0, mnr, maj)
     psi = np.log(n) - m.ln_ni - m.theta
     return np.column_stack([psi, np.log(n), np.log(p)])
+
+
+#: Newton iterations allowed for the equilibrium solve and for each continuation step.
+_EQUILIBRIUM_ITERATIONS = 200
+_STEP_ITERATIONS = 40
 
 
 def equilibrium(mesh):
@@ -662,7 +910,7 @@ def equilibrium(mesh):
     SolverError
         No convergence in 200 iterations.
     """
-    u, _ = _newton(mesh, _neutral_guess(mesh), 0.0, maxit=200)
+    u, _ = _newton_many([mesh], [(_neutral_guess(mesh), 0.0, _EQUILIBRIUM_ITERATIONS)])[0]
     if u is None:
         raise SolverError("no convergence at equilibrium")
     mesh.equilibrium = u
@@ -706,6 +954,10 @@ class Solution:
     psi, n, p : potential [V] and densities [m^-3] on the mesh, (biases, nodes).
     iterations : Newton iterations spent per bias (continuation steps included).
     mesh : the Mesh.
+    terminal_bias : bias at the device's leads [V], bias + current * contact_resistance
+        (:attr:`Structure.contact_resistance`; the neutral regions' resistance, conductivity
+        modulation included, is already inside ``bias``): the voltage to set against a
+        measured or simulated I-V whose series resistance includes the contacts.
     """
 
     bias: np.ndarray
@@ -723,48 +975,138 @@ class Solution:
     p: np.ndarray
     iterations: np.ndarray
     mesh: Mesh
+    terminal_bias: np.ndarray | None = None
+
+    @property
+    def degenerate(self):
+        """Plain-text warning where the equilibrium densities are degenerate, else '' (see
+        :func:`degeneracy_warning`; silicon's effective densities of states)."""
+        return degeneracy_warning(self.mesh)
 
 
-def _observe(m, u, bias, capacitance):
-    """Terminal current, mechanism split, field, charges (and dQ/dV) of one converged state (SI)."""
-    psi, n, p = u[:, 0], np.exp(u[:, 1]), np.exp(u[:, 2])
+def _observe(m, states, biases, capacitance):
+    """Terminal current, mechanism split, field, charges (and dQ/dV) of converged states (SI).
+
+    ``states`` (biases, nodes, 3) at ``biases`` [V]; ``capacitance`` a mask over
+    them. All biases at once: row by row the same numbers as one at a time.
+    """
+    psi, n, p = states[..., 0], np.exp(states[..., 1]), np.exp(states[..., 2])
     f = _fluxes(m, psi, n, p)
     srh, aug, _, _ = _recombination(m, n, p)
     jscale = Q * m.d0 * m.c0 / m.lref  # scaled flux -> A/m^2
     rscale = Q * m.c0 * m.d0 / m.lref  # box (scaled) * R (scaled) -> A/m^2
     c = m.c
     dep = ((c < 0) & (p < 0.5 * np.abs(c))) | ((c > 0) & (n < 0.5 * c))
-    dep[m.junction] = True
+    dep[:, m.junction] = True
     out = {
-        "srh_depletion": rscale * np.sum(m.box * srh * dep),
-        "srh_neutral": rscale * np.sum(m.box * srh * ~dep),
-        "auger": rscale * np.sum(m.box * aug),
-        "surface_p": jscale * (f["jn"][0] - m.box[0] * (srh[0] + aug[0])),
-        "surface_n": jscale * (f["jp"][-1] - m.box[-1] * (srh[-1] + aug[-1])),
+        "srh_depletion": rscale * np.sum(m.box * srh * dep, axis=-1),
+        "srh_neutral": rscale * np.sum(m.box * srh * ~dep, axis=-1),
+        "auger": rscale * np.sum(m.box * aug, axis=-1),
+        "surface_p": jscale * (f["jn"][:, 0] - m.box[0] * (srh[:, 0] + aug[:, 0])),
+        "surface_n": jscale * (f["jp"][:, -1] - m.box[-1] * (srh[:, -1] + aug[:, -1])),
     }
     # the terminal current as the sum of its parts: no cancellation of large majority fluxes
     j = sum(out.values())
     k = m.junction
-    j_junction = jscale * (f["jn"][k] + f["jp"][k])
-    vj = m.vt * (np.log(n[k] * p[k]) - 2.0 * np.log(m.nie[k]))
-    slope = np.diff(psi) / m.h
-    e = int(np.argmax(np.abs(slope)))
-    field = abs(slope[e]) * m.vt / m.lref
+    j_junction = jscale * (f["jn"][:, k] + f["jp"][:, k])
+    vj = m.vt * (np.log(n[:, k] * p[:, k]) - 2.0 * np.log(m.nie[k]))
+    slope = np.abs(np.diff(psi, axis=-1) / m.h)
+    peak = slope[np.arange(len(slope)), np.argmax(slope, axis=-1)]
+    field = peak * m.vt / m.lref
     eq = m.equilibrium
     ne, pe = np.exp(eq[:, 1]), np.exp(eq[:, 2])
     excess = np.where(c < 0, n - ne, p - pe) * ~dep
-    stored = Q * m.c0 * m.lref * np.sum(m.box * excess)
-    qscale = m.structure.permittivity * m.vt / m.lref
-    qdep = qscale * abs(slope[e])
-    cap = np.nan
-    if capacitance:
-        _, ab = _system(m, u, bias)
-        rhs = np.zeros(3 * len(psi))
-        rhs[0] = 1.0 / m.vt  # d(psi0/Vt)/dV: the only bias-dependent equation
-        du = solve_banded((_BAND, _BAND), ab, rhs, overwrite_ab=True, check_finite=False).reshape(-1, 3)
-        # the charge the n contact delivers: every electron in the device [C/m^2 per V]
-        cap = Q * m.c0 * m.lref * np.sum(m.box * n * du[:, 1]) * m.structure.area
+    stored = Q * m.c0 * m.lref * np.sum(m.box * excess, axis=-1)
+    qdep = m.structure.permittivity * m.vt / m.lref * peak
+    cap = np.full(len(states), np.nan)
+    want = np.flatnonzero(capacitance)
+    if len(want):
+        # one stacked solve: the converged Jacobian of each state against d(psi0/Vt)/dV, the only
+        # bias-dependent equation
+        st = _stack_of([m] * len(want))
+        _, ab = _system(st, states[want].reshape(-1, 3), np.asarray(biases, float)[want])
+        rhs = np.zeros(st.width)
+        rhs[st.pos[st.start]] = 1.0 / m.vt
+        du = _banded(ab, rhs)
+        if du is not None:  # (a converged state's Jacobian is not singular; if it were, C stays NaN)
+            du = du[st.rows].reshape(len(want), -1, 3)
+            # the charge the n contact delivers: every electron in the device [C/m^2 per V]
+            cap[want] = Q * m.c0 * m.lref * np.sum(m.box * n[want] * du[:, :, 1], axis=-1) * m.structure.area
     return j, out, field, stored, qdep, cap, j_junction, vj
+
+
+def _continuation(m, v, want_c, max_step):
+    """One device's bias continuation, as a generator of Newton requests.
+
+    Yields (state, bias, iteration limit) and receives (state or None,
+    iterations) for each; returns the raw results. Every decision (step size,
+    halving, predictor) depends on this device's own numbers only, so the
+    device gives the same bytes solved alone (:func:`solve`) or among others
+    (:func:`solve_many`).
+    """
+    if m.equilibrium is None:
+        u, _ = yield (_neutral_guess(m), 0.0, _EQUILIBRIUM_ITERATIONS)
+        if u is None:
+            raise SolverError("no convergence at equilibrium")
+        m.equilibrium = u
+    nb, N = len(v), len(m.x)
+    states = np.zeros((nb, N, 3))
+    res = {"it": np.zeros(nb, int)}
+    for direction in (1.0, -1.0):
+        sel = np.flatnonzero(v >= 0) if direction > 0 else np.flatnonzero(v < 0)
+        order = sel[np.argsort(direction * v[sel], kind="stable")]
+        step_max = (max_step or (4.0 if direction > 0 else 20.0) * m.vt)
+        hist = [(0.0, m.equilibrium)]
+        for k in order:
+            target = v[k]
+            its = 0
+            step = step_max
+            while hist[-1][0] != target:
+                v0, u0 = hist[-1]
+                vn = v0 + np.clip(target - v0, -step, step)
+                if abs(vn - target) < 1e-12:
+                    vn = target
+                guess = u0
+                if len(hist) > 1:
+                    v1, u1 = hist[-2]
+                    if v0 != v1:
+                        guess = u0 + (u0 - u1) * (vn - v0) / (v0 - v1)
+                u, it = yield (guess, vn, _STEP_ITERATIONS)
+                its += it
+                if u is None:
+                    step *= 0.5
+                    if step < 1e-4:
+                        raise SolverError(f"no convergence at {vn:.4g} V")
+                    continue
+                hist.append((vn, u))
+                hist = hist[-2:]
+                # in reverse bias the solution changes smoothly with |V|: steps may grow to a fifth of it
+                cap = step_max if direction > 0 or max_step else max(step_max, 0.2 * abs(vn))
+                step = min(step * 1.5, cap)
+            states[k] = hist[-1][1]
+            res["it"][k] = its
+    j, out, fld, st, qd, cp, jj, vj = _observe(m, states, v, want_c)
+    res.update(j=j, field=fld, stored=st, qdep=qd, cap=cp, jj=jj, vj=vj, psi=states[..., 0] * m.vt,
+               n=np.exp(states[..., 1]) * m.c0, p=np.exp(states[..., 2]) * m.c0)
+    return res, out
+
+
+def _solution(structure, m, v, want_c, res, comps):
+    comps["diffusion"] = res["j"] - comps["srh_depletion"]
+    area = structure.area
+    return Solution(bias=v, current_density=res["j"], current=res["j"] * area, components=comps,
+                    peak_field=res["field"], stored_charge=res["stored"], depletion_charge=res["qdep"],
+                    capacitance=np.where(want_c, res["cap"], np.nan),
+                    junction_current_density=res["jj"], junction_voltage=res["vj"], psi=res["psi"], n=res["n"],
+                    p=res["p"], iterations=res["it"], mesh=m,
+                    terminal_bias=v + res["j"] * area * float(structure.contact_resistance))
+
+
+def _biases(biases, who):
+    v = np.asarray(biases, dtype=float).ravel()
+    if not np.all(np.isfinite(v)):
+        raise ValueError(f"{who}: every bias must be a finite number of volts")
+    return v
 
 
 def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=1.0):
@@ -801,63 +1143,375 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
 
     Notes
     -----
-    Valid for non-degenerate silicon (Boltzmann statistics), no impact
-    ionisation or tunnelling (reverse biases short of breakdown), steady state.
+    Valid for non-degenerate silicon (Boltzmann statistics: see
+    :attr:`Solution.degenerate`), no impact ionisation or tunnelling
+    (reverse biases short of breakdown: see :func:`breakdown_bias`), steady
+    state. The same code as :func:`solve_many` with one device: the same
+    bytes as that device among others.
     """
-    v = np.asarray(biases, dtype=float).ravel()
-    if not np.all(np.isfinite(v)):
-        raise ValueError("solve: every bias must be a finite number of volts")
-    m = mesh if mesh is not None else make_mesh(structure, refine=refine, reverse_to=min(v.min(initial=0.0), 0.0))
-    if m.equilibrium is None:
-        equilibrium(m)
-    nb, N = len(v), len(m.x)
-    want_c = np.broadcast_to(np.asarray(capacitance, dtype=bool), v.shape)
-    res = dict(j=np.zeros(nb), jj=np.zeros(nb), vj=np.zeros(nb), field=np.zeros(nb), stored=np.zeros(nb), qdep=np.zeros(nb), cap=np.zeros(nb),
-               it=np.zeros(nb, int), psi=np.zeros((nb, N)), n=np.zeros((nb, N)), p=np.zeros((nb, N)))
-    comps = {k: np.zeros(nb) for k in ("srh_depletion", "srh_neutral", "auger", "surface_p", "surface_n")}
-    for direction in (1.0, -1.0):
-        sel = np.flatnonzero(v >= 0) if direction > 0 else np.flatnonzero(v < 0)
-        order = sel[np.argsort(direction * v[sel])]
-        step_max = (max_step or (4.0 if direction > 0 else 20.0) * m.vt)
-        hist = [(0.0, m.equilibrium)]
-        for k in order:
-            target = v[k]
-            its = 0
-            step = step_max
-            while hist[-1][0] != target:
-                v0, u0 = hist[-1]
-                vn = v0 + np.clip(target - v0, -step, step)
-                if abs(vn - target) < 1e-12:
-                    vn = target
-                guess = u0
-                if len(hist) > 1:
-                    v1, u1 = hist[-2]
-                    if v0 != v1:
-                        guess = u0 + (u0 - u1) * (vn - v0) / (v0 - v1)
-                u, it = _newton(m, guess, vn)
-                its += it
-                if u is None:
-                    step *= 0.5
-                    if step < 1e-4:
-                        raise SolverError(f"no convergence at {vn:.4g} V")
-                    continue
-                hist.append((vn, u))
-                hist = hist[-2:]
-                # in reverse bias the solution changes smoothly with |V|: steps may grow to a fifth of it
-                cap = step_max if direction > 0 or max_step else max(step_max, 0.2 * abs(vn))
-                step = min(step * 1.5, cap)
-            u = hist[-1][1]
-            j, out, fld, st, qd, cp, jj, vj = _observe(m, u, target, want_c[k])
-            res["j"][k], res["field"][k], res["stored"][k], res["qdep"][k], res["cap"][k] = j, fld, st, qd, cp
-            res["jj"][k], res["vj"][k] = jj, vj
-            res["it"][k] = its
-            res["psi"][k], res["n"][k], res["p"][k] = u[:, 0] * m.vt, np.exp(u[:, 1]) * m.c0, np.exp(u[:, 2]) * m.c0
-            for key in comps:
-                comps[key][k] = out[key]
-    comps["diffusion"] = res["j"] - comps["srh_depletion"]
-    area = structure.area
-    return Solution(bias=v, current_density=res["j"], current=res["j"] * area, components=comps,
-                    peak_field=res["field"], stored_charge=res["stored"], depletion_charge=res["qdep"],
-                    capacitance=np.where(want_c, res["cap"], np.nan),
-                    junction_current_density=res["jj"], junction_voltage=res["vj"], psi=res["psi"], n=res["n"],
-                    p=res["p"], iterations=res["it"], mesh=m)
+    return solve_many([structure], [np.atleast_1d(np.asarray(biases, dtype=float))],
+                      meshes=None if mesh is None else [mesh], capacitance=capacitance, max_step=max_step,
+                      refine=refine)[0]
+
+
+def solve_many(structures, biases, meshes=None, capacitance=True, max_step=None, refine=1.0, errors="raise"):
+    """Solve several diodes at once: one stacked banded system per Newton step for all of them.
+
+    Each device follows its own bias continuation (:func:`solve`'s schedule:
+    fixed steps in volts, halved on failure, decided by that device's numbers
+    alone); at every round the devices still running each ask for one Newton
+    solve, and these run together, the per-device Jacobians stacked along the
+    diagonal of one band matrix with zero coupling (and identity spacer rows,
+    so that LAPACK treats every block alike) and solved by one call of
+    LAPACK's ?gbsv (:func:`scipy.linalg.lapack.dgbsv`). A device that has
+    converged leaves the stack. The result for each device is byte for byte what :func:`solve`
+    gives for it alone. Meshes may differ in size.
+
+    Parameters
+    ----------
+    structures : sequence of Structure
+    biases : array_like or sequence of array_like
+        One bias list for all devices, or one per device [V].
+    meshes : sequence of Mesh or None, optional
+        One per device (None entries: :func:`make_mesh` with ``refine``, graded
+        for the device's most reverse bias).
+    capacitance : bool, array_like of bool, or a list of arrays of bool (one per device)
+        As in :func:`solve`: one choice, or one mask over the biases, for all
+        devices; or a list of ``len(structures)`` masks (arrays, each over that
+        device's biases).
+    max_step : float, optional
+        As in :func:`solve`.
+    refine : float
+        Mesh density multiplier where no mesh is given.
+    errors : {'raise', 'keep'}
+        On a device that fails: raise its SolverError (naming the device), or
+        keep the exception object in its place in the returned list.
+
+    Returns
+    -------
+    list of Solution
+        In the order of ``structures``.
+
+    Raises
+    ------
+    SolverError
+        A device failed (``errors='raise'``).
+    ValueError
+        A bias is not finite, or the lists differ in length.
+    """
+    structures = list(structures)
+    nd = len(structures)
+    per_device = (isinstance(biases, (list, tuple, np.ndarray)) and len(biases) == nd and nd > 0
+                  and all(np.ndim(b) >= 1 for b in biases))
+    vs = [_biases(b, "solve") for b in biases] if per_device else [_biases(biases, "solve")] * nd
+    per_device = (isinstance(capacitance, (list, tuple)) and len(capacitance) == nd
+                  and all(np.ndim(c) >= 1 for c in capacitance))
+    caps = list(capacitance) if per_device else [capacitance] * nd
+    meshes = list(meshes) if meshes is not None else [None] * nd
+    if len(meshes) != nd or len(caps) != nd:
+        raise ValueError("solve_many: one mesh and one capacitance choice per structure")
+    ms, want, gens = [], [], []
+    for s, v, mesh, c in zip(structures, vs, meshes, caps):
+        m = mesh if mesh is not None else make_mesh(s, refine=refine, reverse_to=min(v.min(initial=0.0), 0.0))
+        w = np.broadcast_to(np.asarray(c, dtype=bool), v.shape)
+        ms.append(m)
+        want.append(w)
+        gens.append(_continuation(m, v, w, max_step))
+    results = []
+    for k, (kind, value) in enumerate(_drive(ms, gens)):
+        if kind == "error":
+            if errors == "raise":
+                raise SolverError(f"device {k}: {value}" if nd > 1 else str(value)) from None
+            results.append(value)
+        else:
+            results.append(_solution(structures[k], ms[k], vs[k], want[k], *value))
+    return results
+
+
+# --------------------------------------------------------------------------- degeneracy
+
+#: Largest overstatement of the density by Boltzmann statistics the solver's results accept [-].
+DEGENERACY_ERROR = 0.05
+
+
+def fermi_dirac_half(eta, terms=60):
+    """The Fermi-Dirac integral F_1/2(eta) for eta <= 0, normalised so that n = Nc F_1/2(eta_F).
+
+    F_1/2(eta) = (2/sqrt(pi)) integral_0^inf sqrt(e) / (1 + exp(e - eta)) de
+    = sum_k (-1)^(k+1) exp(k eta) / k^(3/2), the alternating series, which
+    converges for eta <= 0 (and tends to exp(eta), Boltzmann, for eta -> -inf).
+
+    Parameters
+    ----------
+    eta : array_like
+        Reduced Fermi level (E_F - E_c) / kT [-], at most -1 (non-degenerate to
+        weakly degenerate); larger values are clipped to -1 (the series slows
+        down towards 0).
+    terms : int
+        Terms of the series; 60 gives the sum to 1e-12 at eta = -1 and better below.
+
+    Returns
+    -------
+    numpy.ndarray
+        F_1/2(eta) [-].
+
+    References
+    ----------
+    J. S. Blakemore, "Approximations for Fermi-Dirac integrals, especially the
+    function F_1/2(eta) used to describe electron density in a semiconductor",
+    Solid-State Electron. 25, 1067 (1982).
+    """
+    x = np.exp(np.minimum(np.asarray(eta, float), -1.0))[..., None]
+    k = np.arange(1, terms + 1)
+    return np.sum((-1.0) ** (k + 1) * x**k / k**1.5, axis=-1)
+
+
+def degeneracy_limit(effective_density, error=DEGENERACY_ERROR):
+    """The carrier density above which Boltzmann statistics overstate it by more than ``error``.
+
+    At a Fermi level eta, Boltzmann gives Nc exp(eta) where Fermi-Dirac
+    gives Nc F_1/2(eta); the limit is Nc F_1/2(eta*) with
+    exp(eta*) / F_1/2(eta*) = 1 + error (found by bisection; for 5 % it is
+    0.138 Nc, eta* = -1.93; to first order exp(eta*) = 2^(3/2) error).
+
+    Parameters
+    ----------
+    effective_density : array_like
+        Nc or Nv [m^-3].
+    error : float
+        Accepted relative overstatement [-], between 1e-6 and 0.1 (eta* below -1).
+
+    Returns
+    -------
+    numpy.ndarray
+        [m^-3].
+
+    References
+    ----------
+    Blakemore, Solid-State Electron. 25, 1067 (1982) (F_1/2 and its series);
+    Sze & Ng, *Physics of Semiconductor Devices*, 3rd ed. (2007), sec. 1.4.1
+    (n = Nc F_1/2, Boltzmann's limit).
+    """
+    lo, hi = -20.0, -1.0
+    for _ in range(80):
+        mid = 0.5 * (lo + hi)
+        if np.exp(mid) / fermi_dirac_half(mid) > 1.0 + error:
+            hi = mid
+        else:
+            lo = mid
+    return np.asarray(effective_density, float) * fermi_dirac_half(lo)
+
+
+def degeneracy_warning(mesh, material=silicon, error=DEGENERACY_ERROR):
+    """A plain-text warning where the equilibrium electron or hole density is degenerate, else ''.
+
+    The solver uses Boltzmann statistics. Where the equilibrium density of a
+    carrier exceeds :func:`degeneracy_limit` of the band's effective density
+    of states (``material.effective_density_of_states`` at the structure's
+    temperature), Boltzmann overstates the density at a given Fermi level by
+    more than ``error`` (5 %: 0.138 Nc, 3.95e18 cm^-3 for electrons and
+    4.29e18 cm^-3 for holes in silicon at 300 K with Green's (1990) Nc, Nv).
+    The apparent band-gap narrowing the solver uses carries part of the
+    effect on n p; the currents and the charge of such a region remain
+    estimates.
+
+    Parameters
+    ----------
+    mesh : Mesh
+        With its equilibrium solved (:func:`equilibrium`; :func:`solve` does it).
+    material : module
+        A :mod:`modelgen.materials` module.
+    error : float
+        Accepted relative overstatement [-].
+
+    Returns
+    -------
+    str
+        '' when both densities stay below their limits.
+
+    References
+    ----------
+    Blakemore, Solid-State Electron. 25, 1067 (1982); Sze & Ng (2007), sec. 1.4.1.
+    """
+    if mesh.equilibrium is None:
+        equilibrium(mesh)
+    u = mesh.equilibrium
+    nc, nv = material.effective_density_of_states(mesh.structure.temperature)
+    parts = []
+    for name, col, dos in (("electron", 1, nc), ("hole", 2, nv)):
+        dens = np.exp(u[:, col]) * mesh.c0
+        limit = float(degeneracy_limit(dos, error))
+        k = int(np.argmax(dens))
+        if dens[k] > limit:
+            parts.append(f"the equilibrium {name} density reaches {dens[k] / 1e6:.3g} cm^-3 "
+                         f"(from {mesh.x[k] * 1e6:.4g} um), above {limit / 1e6:.3g} cm^-3")
+    if not parts:
+        return ""
+    return ("degenerate: " + "; ".join(parts) + f", where Boltzmann statistics overstate the density by more "
+            f"than {100 * error:g} % (Fermi-Dirac integral F_1/2); the solver's results for that region are "
+            "estimates")
+
+
+# --------------------------------------------------------------------------- avalanche breakdown
+
+
+def ionization_integrals(solution, material=silicon):
+    """Hole-initiated ionization integral over the solver's field, at each bias of a solution [-].
+
+    The field is the electrostatic one, |d psi / dx| on each mesh edge (the
+    Scharfetter-Gummel field is constant along an edge), placed at the edge
+    midpoints and integrated from the n contact towards the p contact with
+    :func:`modelgen.physics.breakdown.ionization_integral` (trapezoidal rule)
+    and the material's ionization coefficients. Avalanche breakdown is where
+    it reaches 1 (Sze & Ng 2007, sec. 2.4.3).
+
+    Parameters
+    ----------
+    solution : Solution
+    material : module
+        A :mod:`modelgen.materials` module (``ionization_coefficients``).
+
+    Returns
+    -------
+    numpy.ndarray
+        The integral at each bias [-]; near 0 in forward bias.
+
+    Notes
+    -----
+    The solver has no impact ionisation of its own: the integral is taken
+    over the field of the solution without multiplication, as the closed
+    form takes it over the depletion approximation's field. Breakdown figures
+    are estimates to be derated and confirmed on measured devices.
+
+    References
+    ----------
+    Sze & Ng, *Physics of Semiconductor Devices*, 3rd ed. (2007), sec. 2.4.3.
+    """
+    m = solution.mesh
+    field = np.abs(np.diff(solution.psi, axis=1)) / np.diff(m.x)
+    y = m.x[-1] - 0.5 * (m.x[1:] + m.x[:-1])  # from the n contact
+    field = field[:, ::-1]
+    y = np.broadcast_to(y[::-1], field.shape)
+    with np.errstate(divide="ignore"):
+        return _breakdown.ionization_integral(y, field, np.full(len(field), m.structure.temperature),
+                                              material.ionization_coefficients)
+
+
+@dataclass
+class Breakdown:
+    """The avalanche breakdown found by :func:`breakdown_bias`.
+
+    Attributes
+    ----------
+    bias : applied bias at breakdown [V] (negative: reverse).
+    integral : the ionization integral there [-] (1 within the tolerance).
+    peak_field : largest |E| there [V/m].
+    evaluations : solver runs spent.
+    solution : the Solution at ``bias``.
+    """
+
+    bias: float
+    integral: float
+    peak_field: float
+    evaluations: int
+    solution: Solution
+
+
+def breakdown_bias(structure, material=silicon, start=-1.0, limit=-1e4, rtol=1e-5, refine=1.0, maxiter=60):
+    """The reverse bias where the ionization integral over the solver's field reaches 1.
+
+    The bias is doubled from ``start`` until the integral passes 1; the
+    bracket is then solved on one mesh (graded for its reverse end) by
+    regula falsi (Illinois) on ln I against ln |V|, until ln I is within
+    ``rtol`` of 0 or the bracket within ``rtol`` (relative).
+
+    Parameters
+    ----------
+    structure : Structure
+    material : module
+        Supplies the ionization coefficients.
+    start : float
+        First reverse bias tried [V], < 0.
+    limit : float
+        Most reverse bias tried [V].
+    rtol : float
+        Tolerance on ln I and on the bracket [-].
+    refine : float
+        Mesh density multiplier (see :func:`make_mesh`).
+    maxiter : int
+        Regula-falsi steps at most.
+
+    Returns
+    -------
+    Breakdown
+
+    Raises
+    ------
+    SolverError
+        No breakdown up to ``limit``, or the solver failed.
+
+    Notes
+    -----
+    Avalanche breakdown only (above about 6 Eg/q; tunnelling dominates below
+    4 Eg/q, Sze & Ng 2007, sec. 2.4.3); the field is the steady-state field
+    without multiplication or self-heating. An estimate: derate it and confirm
+    it on measured devices.
+
+    References
+    ----------
+    Sze & Ng (2007), sec. 2.4.3; ionization coefficients of the material.
+    """
+    runs = 0
+
+    def evaluate(v, mesh):
+        nonlocal runs
+        runs += 1
+        sol = solve(structure, [v], mesh=mesh, capacitance=False)
+        return float(ionization_integrals(sol, material)[0]), sol
+
+    v_lo, v = None, float(start)
+    if not v < 0:
+        raise ValueError("breakdown_bias: start must be a reverse (negative) bias")
+    while True:
+        i, _ = evaluate(v, make_mesh(structure, refine=refine, reverse_to=v))
+        if i >= 1.0:
+            break
+        v_lo = v
+        if v <= limit:
+            raise SolverError(f"no avalanche breakdown up to {limit:g} V")
+        v = max(2.0 * v, limit)
+    mesh = make_mesh(structure, refine=refine, reverse_to=v)
+    v_hi = v
+    v_lo = v_hi / 2.0 if v_lo is None else v_lo
+
+    def g(v):
+        i, sol = evaluate(v, mesh)
+        return np.log(max(i, 1e-300)), i, sol
+
+    g_lo, g_hi = g(v_lo)[0], g(v_hi)[0]
+    if not g_lo < 0 <= g_hi:  # the finer mesh moved the root out of the bracket: widen once
+        v_lo, v_hi = v_lo / 2.0, max(2.0 * v_hi, limit)
+        g_lo, g_hi = g(v_lo)[0], g(v_hi)[0]
+        if not g_lo < 0 <= g_hi:
+            raise SolverError("breakdown_bias: the ionization integral does not cross 1 monotonically")
+    a, b = np.log(-v_lo), np.log(-v_hi)
+    side = 0
+    for _ in range(maxiter):
+        c = b - g_hi * (b - a) / (g_hi - g_lo)
+        gc, ic, sol = g(-np.exp(c))
+        if abs(gc) < rtol or abs(b - a) < rtol:
+            break
+        if gc < 0:
+            a, g_lo = c, gc
+            if side == -1:
+                g_hi *= 0.5
+            side = -1
+        else:
+            b, g_hi = c, gc
+            if side == 1:
+                g_lo *= 0.5
+            side = 1
+    else:
+        raise SolverError("breakdown_bias: no convergence of the breakdown bias")
+    return Breakdown(bias=float(sol.bias[0]), integral=ic, peak_field=float(sol.peak_field[0]), evaluations=runs,
+                     solution=sol)
