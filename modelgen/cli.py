@@ -179,14 +179,14 @@ def _window_options(f):
 
 
 def _window(result, file, current_range, reverse_bias, cv_range):
-    """The fit window of device 0: the description's, then the command line's values over it."""
+    """The fit window of device 0: the description's [fit], then the command line's values over it."""
     import dataclasses
 
     from . import numeric
     from .units import parse_quantity
 
     given = {}
-    try:
+    try:  # the options' own text: an error names the option
         if current_range:
             given["current_low"], given["current_high"] = (parse_quantity(v, "current", key="--current-range")
                                                            for v in current_range)
@@ -195,10 +195,16 @@ def _window(result, file, current_range, reverse_bias, cv_range):
         if cv_range:
             given["capacitance_low"], given["capacitance_high"] = (parse_quantity(v, "voltage", key="--cv-range")
                                                                    for v in cv_range)
+    except InputError as e:
+        _fail(str(e))
+    try:  # the description's [fit]: an error names its file and key
         window = numeric.Window.from_device(result.device, 0)
+    except InputError as e:
+        _fail(str(e.located(file=file)))
+    try:
         return dataclasses.replace(window, **given) if given else window
     except InputError as e:
-        _fail(str(e.located(file=file)) if not e.file and not given else str(e))
+        _fail(f"{str(e)} (the fit window after the command line's options)")
 
 
 def _numeric(result, file, dialect, window):

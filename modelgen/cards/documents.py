@@ -5,13 +5,20 @@ from __future__ import annotations
 import json
 import math
 
+import numpy as np
+
 from ..extraction import PARAMETERS, UNITS, Result
 
 
 def json_safe(v):
-    """``v`` with non-finite floats as None, through dicts and lists (strict JSON)."""
+    """``v`` with non-finite floats as None, through dicts and lists (strict JSON); numpy arrays and
+    scalars become lists and Python numbers."""
     if isinstance(v, dict):
         return {k: json_safe(x) for k, x in v.items()}
+    if isinstance(v, np.ndarray):
+        v = v.tolist()
+    elif isinstance(v, np.generic):
+        v = v.item()
     if isinstance(v, (list, tuple)):
         return [json_safe(x) for x in v]
     if isinstance(v, float) and not math.isfinite(v):
