@@ -56,6 +56,7 @@ KINDS = {
     "breakdown_estimate": "breakdown is an estimate",
     "profile": "diffused or tabulated profile (closed forms approximate it)",
     # a card fitted to the numerical solver (modelgen.numeric)
+    "leakage": "reverse leakage beyond what a level-1 card carries",
     "numeric-fit": "card fitted to the numerical solver",
     "numeric-kept": "closed-form values kept where the window could not fit them",
     "numeric-window": "the forward sweep stopped short of the window",
@@ -367,6 +368,8 @@ def _stages(device, mat, problems):
     cap = _capacitance(env, el)
     bd = _breakdown(mat, sides, env, el)
     findings = _findings(device, mat, sides, env, el, bd, profile)
+    leak = _leakage(device, sides, env, el, cur)
+    findings.insert(-1, leak["finding"])  # before the standing caution
     ones = np.ones(len(device))
     p, n = sides["p"], sides["n"]
     params = {
@@ -381,12 +384,47 @@ def _stages(device, mat, problems):
         "reference_bias": device.reference_bias, "junction_area": env["area_total"], "bottom_area": device.area,
         "recombination_lifetime": cur["tau_rec"], "breakdown_peak_field": bd["e_peak"],
         "reach_through": bd["reach_p"] | bd["reach_n"],
+        "leakage_bias": leak["bias"], "leakage": leak["current"],
         "p": {k: p[k] for k in SIDE_QUANTITIES}, "n": {k: n[k] for k in SIDE_QUANTITIES},
     }
     derived["p"]["depletion_extent"] = el["xp0"]
     derived["n"]["depletion_extent"] = el["xn0"]
     _guard(device, params, problems)
     return Result(device=given, params=params, derived=derived, findings=findings, sources=dict(mat.SOURCES))
+
+
+#: Where no [fit] reverse_bias is given, the reverse leakage is reported at this bias [V].
+LEAKAGE_BIAS = -5.0
+#: The card's reverse current (about IS) is called short of the physics when this many times smaller.
+LEAKAGE_FACTOR = 10.0
+LEAKAGE_FINDING = ("reverse leakage: at {vr:g} V the physics gives {leak:.3g} A, mostly depletion-region "
+                   "generation, the card about IS = {is_:.3g} A: no level-1 diode carries the generation "
+                   "current (ngspice applies ISR in forward bias only); card --form subckt (ngspice dialect) "
+                   "adds a source for it")
+
+
+def _leakage(device, sides, env, el, cur):
+    """Stage 8b: the physical reverse current at the fit window's reverse bias, and a warning where the card
+    (whose reverse current is about IS) leaks far less.
+
+    The current is the diffusion part IS plus the Sah-Noyce-Shockley generation current of the depletion
+    region (:func:`modelgen.physics.generation.generation_current_density`, the closed forms' trap lifetime
+    and depletion-approximation field) over the junction area, magnitude [A], at ``fit_reverse_bias``
+    (default :data:`LEAKAGE_BIAS`); NaN where that bias is not below -3 Vt.
+    """
+    from .physics import generation
+
+    given = getattr(device, "fit_reverse_bias", None)
+    vr = np.full(len(device), LEAKAGE_BIAS) if given is None else np.where(np.isfinite(given), given, LEAKAGE_BIAS)
+    with np.errstate(all="ignore"):
+        j = generation.generation_current_density(vr, el["vj"], sides["p"]["doping"], sides["n"]["doping"],
+                                                  np.where(el["linear"], el["grading"], 1.0), el["linear"],
+                                                  env["ni"], env["eps"], cur["tau_rec"], cur["tau_rec"], env["t"])
+        leak = cur["IS"] - env["area_total"] * j
+        short = leak > LEAKAGE_FACTOR * cur["IS"]
+    finding = Finding(short, LEAKAGE_FINDING, {"vr": vr, "leak": leak, "is_": cur["IS"]}, severity="warning",
+                      kind="leakage")
+    return {"bias": vr, "current": leak, "finding": finding}
 
 
 def _rule(problems, mask, key, message, values=None):

@@ -960,6 +960,7 @@ def card_result(result, i, fitted):
     from .extraction import Finding
 
     sub = result.take([int(i)])
+    sub.findings = [f for f in sub.findings if f.kind != "leakage"]  # the fit's own leakage finding replaces it
     extra = [Finding(np.array([True]), m.text.replace("{", "{{").replace("}", "}}"), severity=m.severity,
                      kind=m.kind) for m in fitted.findings]
     sub.findings = list(sub.findings) + extra

@@ -238,3 +238,20 @@ def test_fit_is_exact_for_an_exponent_on_its_grid():
     g = leakage.fit(bias, physics, card, vj, t)
     assert g.M[0] == m
     np.testing.assert_allclose([g.IG[0], g.IE[0]], [2e-10, 5e-11], rtol=1e-9)
+
+
+def test_derived_leakage_and_its_warning(solved):
+    """Every card's JSON gives the physical leakage at the window's reverse bias (the solver's within 3 %),
+    and the card warns where it leaks ten times less (all the abrupt examples: generation dominates)."""
+    r, bias, sol = solved
+    assert r.derived["leakage_bias"][0] == -5.0
+    assert r.derived["leakage"][0] == pytest.approx(-sol.current[-1], rel=0.03)
+    kinds = [m.kind for m in r.findings_for(0)]
+    assert "leakage" in kinds
+
+
+def test_subckt_form_drops_the_warning_its_source_answers():
+    plain = run("card", ABRUPT[0], "--dialect", "ngspice", "-q")
+    wrapped = run("card", ABRUPT[0], "--dialect", "ngspice", "--form", "subckt", "-q")
+    assert "reverse leakage: at -5 V" in plain.stdout
+    assert "reverse leakage: at -5 V" not in wrapped.stdout

@@ -46,7 +46,8 @@ def row_document(result: Result, i=0):
 DERIVED_UNITS = {
     "temperature": "K", "ni": "m^-3", "bandgap": "eV", "builtin_voltage": "V", "depletion_width": "m",
     "depletion_width_reference": "m", "reference_bias": "V", "junction_area": "m^2", "bottom_area": "m^2",
-    "recombination_lifetime": "s", "breakdown_peak_field": "V/m", "reach_through": "1",
+    "recombination_lifetime": "s", "breakdown_peak_field": "V/m", "reach_through": "1", "leakage_bias": "V",
+    "leakage": "A",
 }
 #: Units of each side's derived quantities.
 SIDE_UNITS = {
