@@ -851,16 +851,17 @@ def _drive(meshes, tasks, tol=1e-9, stack=STACK):
             du = du[st.rows].reshape(-1, 3)
         big = np.abs(du) > 1.0
         du = np.where(big, np.sign(du) * (1.0 + np.log(np.where(big, np.abs(du), 1.0))), du)
+        # each device's largest update (NaN or inf where it is not finite)
+        sizes = np.maximum.reduceat(np.abs(du).max(axis=1), st.start)
         for j, k in enumerate(ks):
             job = jobs[k]
             job[3] += 1
             it = job[3]
-            d = du[st.start[j]:st.last[j] + 1]
-            if not np.all(np.isfinite(d)):
+            size = sizes[j]
+            if not np.isfinite(size):
                 advance(k, (None, it))
                 continue
-            job[0] += d
-            size = np.max(np.abs(d))
+            job[0] += du[st.start[j]:st.last[j] + 1]
             if size < tol or max(size, job[4]) < 100 * tol:
                 advance(k, (job[0], it))
             elif it >= job[2]:
