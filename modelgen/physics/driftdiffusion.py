@@ -635,7 +635,6 @@ class _Stack:
         spacer = np.ones(self.width, bool)
         spacer[self.rows] = False
         self.spacer = np.flatnonzero(spacer)
-        self.row_start = 3 * start + _SPACER * (np.arange(len(ms)) + 1)  # first row of each block
         self.flat = None  # band positions of the Jacobian entries, made at the first assembly
         self.contact = None  # contact values without the bias (_boundary)
         self.bc = None  # positions of the contact conditions (_contact_rows)
