@@ -457,8 +457,7 @@ def test_breakdown_over_the_solver_field_matches_the_depletion_approximation(nd_
     breakdown): the reverse bias where the ionization integral over the solver's field reaches 1
     within 2 % of the closed form's BV, the same integral over the depletion approximation's field
     (Sze & Ng 2007, sec. 2.4.3; same coefficients, van Overstraeten & de Man 1970), and the
-    integral there is 1. Measured when written: 0.1 % (1e16) and 0.6 % (1e17) apart, the solver
-    higher (its majority tails and band-gap narrowing)."""
+    integral there is 1. Measured when written: the solver 0.1 % (1e16) and 0.6 % (1e17) higher."""
     r = one_sided(nd_cm3, tn_um)
     assert not r.derived["reach_through"][0]
     b = dd.breakdown_bias(dd.structure_from_result(r, 0))
