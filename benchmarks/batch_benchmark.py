@@ -10,7 +10,8 @@ and turned into solver Structures. Each device gets 40 forward biases 0..0.9 V,
 continuation (mesh and equilibrium included in the time), solved
 
 - one at a time with ``solve``, and
-- with ``solve_many`` in batches of BATCH devices (default all N at once).
+- with ``solve_many`` on BATCH devices per call (default all N; it keeps dd.STACK of them
+  in one stacked system at a time).
 
 Runs on one core (BLAS threads set to 1 before numpy loads). Prints seconds per
 device both ways, the speed-up, the extrapolation to 10,000 rows, and whether
@@ -61,7 +62,7 @@ def same(a, b):
 
 def main():
     n = int(sys.argv[1]) if len(sys.argv) > 1 else 200
-    batch = int(sys.argv[2]) if len(sys.argv) > 2 else n
+    batch = int(sys.argv[2]) if len(sys.argv) > 2 else n  # devices per solve_many call (each stacks dd.STACK at most)
     result = extraction.derive(varied_devices(n))
     structures = [dd.structure_from_result(result, i) for i in range(n)]
     iv = np.concatenate([np.linspace(0.0, 0.9, 40), np.linspace(-0.5, -10.0, 20)])
@@ -85,7 +86,7 @@ def main():
     print(f"Newton iterations: {int(sum(s.iterations.sum() for s in alone))} in all")
     print(f"one at a time: {t_alone:.2f} s, {t_alone / n * 1e3:.1f} ms per device, "
           f"10,000 rows ~ {t_alone / n * 1e4 / 60:.1f} min")
-    print(f"batched ({batch} per stack): {t_many:.2f} s, {t_many / n * 1e3:.1f} ms per device, "
+    print(f"batched ({batch} per call, {dd.STACK} per stack): {t_many:.2f} s, {t_many / n * 1e3:.1f} ms per device, "
           f"10,000 rows ~ {t_many / n * 1e4 / 60:.1f} min; speed-up {t_alone / t_many:.2f}x")
     print(f"batched answers byte-identical to single ones: {all(same(a, b) for a, b in zip(alone, many))}")
 

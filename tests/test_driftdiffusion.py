@@ -457,7 +457,7 @@ def test_breakdown_over_the_solver_field_matches_the_depletion_approximation(nd_
     breakdown): the reverse bias where the ionization integral over the solver's field reaches 1
     within 2 % of the closed form's BV, the same integral over the depletion approximation's field
     (Sze & Ng 2007, sec. 2.4.3; same coefficients, van Overstraeten & de Man 1970), and the
-    integral there is 1."""
+    integral there is 1. Measured when written: the solver 0.1 % (1e16) and 0.6 % (1e17) higher."""
     r = one_sided(nd_cm3, tn_um)
     assert not r.derived["reach_through"][0]
     b = dd.breakdown_bias(dd.structure_from_result(r, 0))
@@ -520,7 +520,8 @@ def test_a_singular_newton_step_is_a_failed_step(monkeypatch):
 
 def test_solve_many_gives_the_bytes_of_solve_for_each_device():
     """Five devices of different mesh sizes (the four examples and a tabulated erfc emitter) solved
-    together equal each solved alone, array for array, in either order (the contract of solve_many:
+    together equal each solved alone, array for array, in either order and with at most two in the
+    stack at a time (the contract of solve_many:
     one code path for one device and many, the same bytes; common practice)."""
     structures = [dd.structure_from_result(extraction.derive(description.load(ROOT / "examples" / f"{e}.toml")), 0)
                   for e in EXAMPLES]
@@ -530,8 +531,8 @@ def test_solve_many_gives_the_bytes_of_solve_for_each_device():
     want_c = v < 0.2
     alone = [dd.solve(s, v, capacitance=want_c) for s in structures]
     assert len({len(s.mesh.x) for s in alone}) > 1
-    for order in (slice(None), slice(None, None, -1)):
-        many = dd.solve_many(structures[order], v, capacitance=want_c)
+    for order, stack in ((slice(None), dd.STACK), (slice(None, None, -1), 2)):  # 2: devices join as others end
+        many = dd.solve_many(structures[order], v, capacitance=want_c, stack=stack)
         for a, b in zip(alone[order], many):
             for key in ("current", "current_density", "capacitance", "peak_field", "stored_charge",
                         "depletion_charge", "junction_voltage", "psi", "n", "p", "iterations", "terminal_bias"):

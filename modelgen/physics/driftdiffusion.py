@@ -635,7 +635,6 @@ class _Stack:
         spacer = np.ones(self.width, bool)
         spacer[self.rows] = False
         self.spacer = np.flatnonzero(spacer)
-        self.row_start = 3 * start + _SPACER * (np.arange(len(ms)) + 1)  # first row of each block
         self.flat = None  # band positions of the Jacobian entries, made at the first assembly
         self.contact = None  # contact values without the bias (_boundary)
         self.bc = None  # positions of the contact conditions (_contact_rows)
@@ -649,7 +648,7 @@ def _stack_of(meshes):
     key = tuple(id(m) for m in meshes)
     st = _STACKS.get(key)
     if st is None or any(a is not b for a, b in zip(st.meshes, meshes)):
-        if len(_STACKS) > 256:
+        if len(_STACKS) > 16:  # compositions recur from one iteration to the next, rarely later
             _STACKS.clear()
         st = _STACKS[key] = _Stack(meshes)
     return st
@@ -785,7 +784,12 @@ def _banded(ab, rhs):
     return x
 
 
-def _drive(meshes, tasks, tol=1e-9):
+#: Devices solved together at most: beyond a few dozen the stacked band matrix outgrows the caches
+#: and each unknown costs more (measured with benchmarks/batch_benchmark.py).
+STACK = 32
+
+
+def _drive(meshes, tasks, tol=1e-9, stack=STACK):
     """Run devices' tasks to the end, all their Newton iterations in stacked banded solves.
 
     ``tasks[k]`` is a generator for ``meshes[k]`` that yields Newton requests
@@ -794,9 +798,10 @@ def _drive(meshes, tasks, tol=1e-9):
     request run together as one band matrix; a device whose Newton solve ends
     (converged or failed) is handed its result at once and joins the next
     iteration with its next request, so the stack stays full until devices
-    finish. Each device converges, is damped and stops on its own numbers
-    alone, and a singular or non-finite stacked solve is redone device by
-    device: a device's iterates are the same alone and in any company.
+    finish; at most ``stack`` devices run at once, the next one starting when
+    one finishes. Each device converges, is damped and stops on its own
+    numbers alone, and a singular or non-finite stacked solve is redone device
+    by device: a device's iterates are the same alone and in any company.
 
     Converged when the largest update (psi/Vt, ln n, ln p) is below ``tol``, or
     below 100 tol twice running: in a heavily doped region the minority
@@ -811,6 +816,7 @@ def _drive(meshes, tasks, tol=1e-9):
     """
     out = [None] * len(meshes)
     jobs = {}  # device -> [state, bias, iteration limit, iterations, last update size]
+    waiting = iter(range(len(meshes)))
 
     def advance(k, value):
         try:
@@ -824,8 +830,14 @@ def _drive(meshes, tasks, tol=1e-9):
         else:
             jobs[k] = [np.array(guess, float, copy=True), float(bias), int(maxit), 0, np.inf]
 
-    for k in range(len(meshes)):
-        advance(k, None)
+    def fill():
+        while len(jobs) < max(int(stack), 1):
+            k = next(waiting, None)
+            if k is None:
+                return
+            advance(k, None)
+
+    fill()
     while jobs:
         ks = list(jobs)
         st = _stack_of([meshes[k] for k in ks])
@@ -838,22 +850,24 @@ def _drive(meshes, tasks, tol=1e-9):
             du = du[st.rows].reshape(-1, 3)
         big = np.abs(du) > 1.0
         du = np.where(big, np.sign(du) * (1.0 + np.log(np.where(big, np.abs(du), 1.0))), du)
+        # each device's largest update (NaN or inf where it is not finite)
+        sizes = np.maximum.reduceat(np.abs(du).max(axis=1), st.start)
         for j, k in enumerate(ks):
             job = jobs[k]
             job[3] += 1
             it = job[3]
-            d = du[st.start[j]:st.last[j] + 1]
-            if not np.all(np.isfinite(d)):
+            size = sizes[j]
+            if not np.isfinite(size):
                 advance(k, (None, it))
                 continue
-            job[0] += d
-            size = np.max(np.abs(d))
+            job[0] += du[st.start[j]:st.last[j] + 1]
             if size < tol or max(size, job[4]) < 100 * tol:
                 advance(k, (job[0], it))
             elif it >= job[2]:
                 advance(k, (None, it))
             else:
                 job[4] = size
+        fill()
     return out
 
 
@@ -1154,7 +1168,8 @@ def solve(structure, biases, mesh=None, capacitance=True, max_step=None, refine=
                       refine=refine)[0]
 
 
-def solve_many(structures, biases, meshes=None, capacitance=True, max_step=None, refine=1.0, errors="raise"):
+def solve_many(structures, biases, meshes=None, capacitance=True, max_step=None, refine=1.0, errors="raise",
+               stack=STACK):
     """Solve several diodes at once: one stacked banded system per Newton step for all of them.
 
     Each device follows its own bias continuation (:func:`solve`'s schedule:
@@ -1186,6 +1201,9 @@ def solve_many(structures, biases, meshes=None, capacitance=True, max_step=None,
     errors : {'raise', 'keep'}
         On a device that fails: raise its SolverError (naming the device), or
         keep the exception object in its place in the returned list.
+    stack : int
+        Devices running together at most (:data:`STACK`); the next starts as
+        one finishes. Any value gives the same bytes.
 
     Returns
     -------
@@ -1218,7 +1236,7 @@ def solve_many(structures, biases, meshes=None, capacitance=True, max_step=None,
         want.append(w)
         gens.append(_continuation(m, v, w, max_step))
     results = []
-    for k, (kind, value) in enumerate(_drive(ms, gens)):
+    for k, (kind, value) in enumerate(_drive(ms, gens, stack=stack)):
         if kind == "error":
             if errors == "raise":
                 raise SolverError(f"device {k}: {value}" if nd > 1 else str(value)) from None
