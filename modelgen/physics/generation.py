@@ -119,6 +119,9 @@ def generation_current_density(bias, vj, na, nd, grading, linear, ni, permittivi
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         w_l = np.cbrt(12.0 * eps_b * vd_b / (Q * a_l))
         emax_l = Q * a_l * w_l * w_l / (8.0 * eps_b)
+    rows = lin if lin.any() else None
+    u_lo_b = np.broadcast_to(u_lo, shape)
+    vt_b = np.broadcast_to(vt, shape)
     t_nodes, t_weights = _nodes(nodes)
     total = np.zeros(shape)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore", under="ignore"):
@@ -126,8 +129,12 @@ def generation_current_density(bias, vj, na, nd, grading, linear, ni, permittivi
             du = b - a
             for t, wt in zip(t_nodes, t_weights):
                 u = a + du * (t * t * (3.0 - 2.0 * t))
-                e_abrupt = np.sqrt(np.abs(np.where(u <= u_k, k * na * (u - u_lo), k * nd * (u_hi - u))))
-                e = np.where(lin, _field_linear((u - u_lo) * vt, vd_b, emax_l), e_abrupt)
+                e = np.array(np.sqrt(np.abs(np.where(u <= u_k, k * na * (u - u_lo), k * nd * (u_hi - u)))), ndmin=1)
+                if rows is not None:  # the graded rows only (the field law costs a sine and an arcsine)
+                    sel = np.array(rows, ndmin=1)
+                    e[sel] = _field_linear(np.array((u - u_lo_b) * vt_b, ndmin=1)[sel], np.array(vd_b, ndmin=1)[sel],
+                                           np.array(emax_l, ndmin=1)[sel])
+                e = e.reshape(shape)
                 den = tau_p * (np.exp(u + h) + 1.0) + tau_n * (np.exp(h - u) + 1.0)
                 total += du * (6.0 * t * (1.0 - t) * wt) / (den * e)
     j = Q * ni * np.expm1(2.0 * h) * vt * total
