@@ -17,7 +17,6 @@ import numpy as np
 from . import materials
 from .device import CLOSED_FORM_PROFILES
 from .extraction import profile_of
-from .physics import driftdiffusion
 
 
 def closed_form_holds(result):
@@ -34,6 +33,14 @@ def closed_form_holds(result):
         closed-form values come from an equivalent abrupt junction).
     """
     return np.isin(np.asarray(result.device.profile, dtype=object), CLOSED_FORM_PROFILES)
+
+
+def _solver():
+    """The solver module, imported when a Structure is made (it pulls in scipy.linalg: a tenth of a
+    second that a closed-form card does not need)."""
+    from .physics import driftdiffusion
+
+    return driftdiffusion
 
 
 def structure_for(result, i):
@@ -63,7 +70,7 @@ def structure_for(result, i):
     i = int(i)
     dev = result.device
     if closed_form_holds(result)[i]:
-        return driftdiffusion.structure_from_result(result, i)
+        return _solver().structure_from_result(result, i)
     mat = materials.get(dev.material[i])
     one = dev.row(i)
     p, n, d = result.derived["p"], result.derived["n"], result.derived
@@ -73,7 +80,7 @@ def structure_for(result, i):
     given = [not (np.isnan(getattr(one, s).lifetime[0]) and np.isnan(getattr(one, s).diffusion_length[0]))
              for s in ("p", "n")]
     lifetimes = (float(p["lifetime"][i]), float(n["lifetime"][i])) if any(given) else None
-    return driftdiffusion.structure_from_profile(
+    return _solver().structure_from_profile(
         prof, float(d["junction_area"][i]), temperature=float(d["temperature"][i]), lifetimes=lifetimes,
         velocities=(float(p["contact_velocity"][i]), float(n["contact_velocity"][i])), material=mat,
         relative_permittivity=float(dev.relative_permittivity[i]))
