@@ -174,7 +174,8 @@ def _window_options(f):
                           "default the description's [fit] reverse_bias, else -5 V.")(f)
     f = click.option("--current-range", nargs=2, metavar="LOW HIGH",
                      help="Forward current range of the fit, with units (e.g. \"1 nA\" \"100 mA\"); default "
-                          "the description's [fit] current_low/high, else 1 nA .. 100 mA.")(f)
+                          "the description's [fit] current_low/high, else from the current at 4 kT/q forward "
+                          "bias to 100 mA.")(f)
     return f
 
 
@@ -255,7 +256,7 @@ def card_command(device_files, output, fmt, dialect, section, physics, current_r
 
     With --physics numeric the card is fitted to the numerical solution over
     the fit window (the description's [fit] table, the options below, or
-    1 nA .. 100 mA forward, -5 V reverse, C-V -5 .. 0.3 V), and its header
+    from 4 kT/q forward bias to 100 mA, -5 V reverse, C-V -5 .. 0.3 V), and its header
     and JSON give the worst error per bias region, of the fitted and of the
     closed-form card.
 

@@ -58,6 +58,10 @@ from .spice import evaluator
 
 #: Forward points are this many thermal voltages apart (divided by ``refine``).
 STEP_VT = 1.0
+#: Where the default window starts: this many thermal voltages of forward bias, where exp(V / (N Vt)) - 1
+#: has become an exponential (the closed forms' ISR/NR fit starts there too), below any current at which
+#: depletion-region recombination dominates.
+LOW_BIAS_VT = 4.0
 #: A forward point is "recombination" where the depletion-region SRH is at least this share of the current.
 RECOMBINATION_SHARE = 0.5
 #: A forward point is "high injection" where the minority density at the lighter side's depletion edge
@@ -103,7 +107,9 @@ class Window:
     Attributes
     ----------
     current_low, current_high : float
-        Forward current range [A] (default 1 nA .. 100 mA).
+        Forward current range [A]; default from the bias of :data:`LOW_BIAS_VT`
+        thermal voltages (``current_low`` 0: whatever current that is, so the
+        recombination region of any device size is inside) to 100 mA.
     voltage_cap : float
         Forward terminal voltage where the sweep stops even if the top
         current is not reached [V].
@@ -113,7 +119,7 @@ class Window:
         Bias range of the C-V [V].
     """
 
-    current_low: float = 1e-9
+    current_low: float = 0.0
     current_high: float = 0.1
     voltage_cap: float = 1.5
     reverse_bias: float = -5.0
@@ -130,7 +136,7 @@ class Window:
             v = getattr(self, name)
             _check(isinstance(v, (int, float)) and math.isfinite(v), f"must be a finite number, got {v!r}",
                    f"fit.{name}")
-        _check(self.current_low > 0, f"the forward current range must be positive, got {self.current_low:g} A",
+        _check(self.current_low >= 0, f"the forward current range must be positive, got {self.current_low:g} A",
                "fit.current_low")
         _check(self.current_low < self.current_high,
                f"the low current ({self.current_low:g} A) must be below the high current ({self.current_high:g} A)",
@@ -174,6 +180,11 @@ class Window:
             return cls(**values)
         except WindowError as e:
             raise e.located(file=_at(getattr(device, "source", ()), i), row=_at(getattr(device, "line", ()), i)) from None
+
+
+def _low(w):
+    """The window's low end as text: a current, or the default's bias."""
+    return f"{LOW_BIAS_VT:g} Vt" if w.current_low == 0 else _si(w.current_low, "A")
 
 
 def _at(seq, i):
@@ -413,6 +424,8 @@ def sweep(result, i, window=None, refine=1.0, structure=None):
     region = np.where(comps["srh_depletion"] >= RECOMBINATION_SHARE * cur, "recombination", "ideal").astype(object)
     region[inj >= HIGH_INJECTION] = "high injection"
     in_window = (cur >= window.current_low * (1 - 1e-12)) & (cur <= window.current_high * (1 + 1e-12))
+    if window.current_low == 0:  # the default: from LOW_BIAS_VT thermal voltages up, the whole recombination region
+        in_window &= vf >= LOW_BIAS_VT * vt * (1 - 1e-9)
     nr = len(grid)
     rsel = np.arange(nr, nr + len(reverse))
     csel = np.arange(nr + len(reverse), nr + len(reverse) + len(cv))
@@ -829,7 +842,7 @@ def _findings(sweep, fitted, target):
     table = ", ".join(f"{r} {100 * fitted.errors[r]:.3g} % (closed form {100 * fitted.closed_errors[r]:.3g} %)"
                       for r in order)
     found.append(Message("note", "numeric-fit",
-                         f"fitted to the drift-diffusion solver over {_si(w.current_low, 'A')} .. "
+                         f"fitted to the drift-diffusion solver over {_low(w)} .. "
                          f"{_si(w.current_high, 'A')} forward, {w.reverse_bias:g} V reverse, C-V "
                          f"{w.capacitance_low:g} .. {w.capacitance_high:g} V; worst error by region: {table}"))
     if sweep.stopped == "solver":

@@ -92,7 +92,7 @@ def ngspice_at(result, overrides, dialect, bias):
 def test_window_defaults_and_device_fields():
     """Defaults as the project's issue sets them; a Device's fit_* fields, NaN meaning the default."""
     w = numeric.Window()
-    assert (w.current_low, w.current_high, w.reverse_bias) == (1e-9, 0.1, -5.0)
+    assert (w.current_low, w.current_high, w.reverse_bias) == (0.0, 0.1, -5.0)
     assert (w.capacitance_low, w.capacitance_high) == (-5.0, 0.3)
     nan = np.array([np.nan, np.nan])
     dev = types.SimpleNamespace(fit_current_low=np.array([np.nan, 1e-6]), fit_current_high=np.array([2.0, np.nan]),
