@@ -226,6 +226,31 @@ def test_flooded_base_recombination_has_ideality_two():
     assert np.all((ideality > 1.9) & (ideality < 2.15)), ideality
 
 
+def test_long_base_current_approaches_the_ambipolar_high_level_limit():
+    """High injection in a long base (800 um of 1e13 cm^-3, La about 60 um at tau_HL = 2 tau): the current
+    tends to the ambipolar high-level limit J = 2 q Dp ni exp(qVj/2kT) / La, proportional to exp(qV/2kT)
+    (Webster, Proc. IRE 42, 914 (1954), the field-aided factor 2; ambipolar length: Sze & Ng 2007, ch. 2,
+    high-level injection; from memory), with Vj the quasi-Fermi split at the junction (the base's own drop
+    excluded). The solver's ratio to the limit rises towards 1 as the injection grows (0.79 to 0.86 here,
+    where p at the depletion edge is 13-15 N_D: the low-level corrections go as N_D / p), and the local
+    ideality against Vj climbs towards 2. Auger is off on both sides of the comparison."""
+    table = {"name": "DLONG", "area": "1e-4 cm^2", "temperature": "300 K",
+             "p": {"doping": "1e19 cm^-3", "thickness": "1 um", "lifetime": "1 ns"},
+             "n": {"doping": "1e13 cm^-3", "thickness": "800 um", "lifetime": "1 us"}}
+    r = extraction.derive(description.from_mapping(table))
+    s = dd.structure_from_result(r, 0, auger=False)
+    v = np.array([0.9, 1.0, 1.1, 1.2, 1.3])
+    sol = dd.solve(s, v, capacitance=False)
+    n = r.derived["n"]
+    dp, dn = n["diffusivity"][0], n["majority_mobility"][0] * sol.mesh.vt
+    la = np.sqrt(2 * dp * dn / (dp + dn) * 2e-6)  # ambipolar Da, tau_HL = 2 tau (Shockley & Read 1952)
+    limit = 2 * sc.e * dp * n["ni_eff"][0] / la * np.exp(sol.junction_voltage / (2 * sol.mesh.vt))
+    ratio = sol.current_density / limit
+    assert np.all(np.diff(ratio) > 0) and 0.75 < ratio[0] and ratio[-1] < 1.0, ratio
+    ideality = np.diff(sol.junction_voltage) / (sol.mesh.vt * np.diff(np.log(sol.current_density)))
+    assert np.all(np.diff(ideality) > 0) and 1.6 < ideality[0] and ideality[-1] < 2.0, ideality
+
+
 def test_depletion_recombination_ideality_near_two():
     """Where SRH in the depletion region dominates, its ideality is near 2 (Sah, Noyce & Shockley 1957)."""
     r = derive(20, 50, 0.01, v=0.0)
