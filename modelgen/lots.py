@@ -56,6 +56,10 @@ class Table:
     problems: Problems
 
 
+#: A column ``KEY.stderr`` beside ``KEY`` (as ``modelgen calibrate --by`` writes) is accepted and not used.
+STDERR_SUFFIX = ".stderr"
+
+
 def _header(cell, j, file):
     """``(key, unit or None)`` of header cell ``cell`` (column ``j``, 0-based): ``key`` or ``key [unit]``."""
     key, bracket, rest = cell.partition("[")
@@ -242,6 +246,8 @@ def _read_csv(path, *, sets=None, name_pattern=None, collect=True):
     cols = list(zip(*body)) if n else [()] * width
     columns = {}
     for j, (key, unit) in enumerate(parsed):
+        if key.endswith(STDERR_SUFFIX) and key[:-len(STDERR_SUFFIX)] in KEYS:
+            continue  # a calibration's standard error beside its value: carried in the table, not used here
         if key not in KEYS or key in ("material",):
             raise InputError(f"unknown column; known keys: {', '.join(sorted(k for k in KEYS if k != 'material'))}",
                              file=path, key=key)

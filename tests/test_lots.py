@@ -211,3 +211,17 @@ def test_lots_counts_warnings_by_kind(tmp_path):
     assert r.exit_code == 0, r.output
     assert "warning: 5 of 6 rows: lifetime modelled, not given" in r.stderr
     assert r.stderr.count("lifetime modelled") == 1
+
+
+def test_standard_error_columns_ride_along_unused(tmp_path):
+    """A calibration's table carries KEY.stderr beside KEY: lots reads it and makes the same cards as without."""
+    base = (ROOT / "examples" / "lot_table.csv").read_text().splitlines()
+    head = base[0].split(",")
+    k = head.index("n.doping [cm^-3]")
+    with_err = [",".join(head[:k + 1] + ["n.doping.stderr [cm^-3]"] + head[k + 1:])]
+    with_err += [",".join(r.split(",")[:k + 1] + ["3e14"] + r.split(",")[k + 1:]) for r in base[1:] if r]
+    (tmp_path / "err.csv").write_text("\n".join(with_err) + "\n")
+    a = lots.read_csv(tmp_path / "err.csv")
+    b = lots.read_csv(ROOT / "examples" / "lot_table.csv")
+    assert set(a.columns) == set(b.columns)
+    np.testing.assert_array_equal(a.columns["n.doping"], b.columns["n.doping"])
