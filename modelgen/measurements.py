@@ -36,7 +36,10 @@ Noise floor (I-V)
     Found (not stated), per sweep, on the forward points (V > 0) in order of
     rising V and after the compliance points are gone: the current must rise
     strictly, and be positive, from some point up to the top; the forward
-    points before that run are below the floor. The floor level is the
+    points before that run are below the floor. Only failures in the lower
+    half of the sweep's decades count (|I| below the geometric mean of its
+    smallest non-zero and largest forward |I|): a dip among large currents
+    is noise or heating, not the floor. The floor level is the
     largest ``|I|`` among them, and every point of the sweep (also reverse
     ones) whose ``|I|`` is not above :data:`FLOOR_MARGIN` times that level is
     left out too. A sweep whose forward current rises all the way has no
@@ -67,7 +70,7 @@ from .textio import read_text
 from .units import MAX_UNIT, apply_factor, unit_factor
 
 #: Largest measurement file read (a sweep of thousands of points is well under 1 MiB).
-READ_LIMIT = 64 * 2**20
+READ_LIMIT = 16 * 2**20
 #: Fewest points a sweep needs, and fewest usable points a file needs.
 MIN_POINTS = 3
 #: Relative closeness of currents taken as one compliance level (0.1 %).
@@ -189,7 +192,8 @@ def _line_ranges(lines):
     starts = np.concatenate([[0], breaks + 1])
     ends = np.concatenate([breaks, [len(lines) - 1]])
     parts = [f"{lines[a]}" if a == b else f"{lines[a]}-{lines[b]}" for a, b in zip(starts, ends)]
-    shown_parts = parts if len(parts) <= 8 else parts[:8] + [f"... ({len(parts) - 8} more ranges)"]
+    more = len(parts) - 8
+    shown_parts = parts if more <= 0 else parts[:8] + [f"... ({more} more range{'' if more == 1 else 's'})"]
     return ("line " if len(lines) == 1 else "lines ") + ", ".join(shown_parts)
 
 
@@ -322,7 +326,7 @@ def read_curve(path, kind, *, group=None, floor=None, compliance=None):
     for j, (name, unit) in enumerate(header):
         if name in cells:
             raise InputError("column given twice", file=file, row=head_line, key=name)
-        cells[name] = [c.strip() for c in cols[j]]
+        cells[name] = cols[j]  # float() takes surrounding spaces; the group's text is stripped below
         if group is not None and name == group:
             if unit is not None:
                 raise InputError("the group column holds text and takes no unit", file=file, row=head_line, key=name)
@@ -382,7 +386,8 @@ def read_curve(path, kind, *, group=None, floor=None, compliance=None):
         refuse(temperature <= 0, "temperature", "a temperature at or below absolute zero")
         refuse(~(area > 0) & ~np.isnan(area), "area", "an area at or below zero")
         refuse(perimeter < 0, "perimeter", "a negative perimeter")
-    grp = (np.array(cells[roles["group"]], dtype=object) if "group" in roles else np.full(n, "", dtype=object))
+    grp = (np.array([c.strip() for c in cells[roles["group"]]], dtype=object) if "group" in roles
+           else np.full(n, "", dtype=object))
     if "group" in roles:
         refuse_group = grp == ""
         if refuse_group.any():
@@ -480,7 +485,11 @@ def _floor_in(curve, idx):
     fwd = fwd[np.argsort(curve.v[fwd])]
     i = curve.y[fwd]
     rising = np.concatenate([i[:-1] < i[1:], [True]]) & (i > 0)
-    fails = np.flatnonzero(~rising)  # the rising run that ends at the top starts after the last failure
+    # a dip among large currents (noise, heating) is not the floor: only failures in the lower half of
+    # the sweep's decades count, below the geometric mean of its smallest non-zero and largest |I|
+    a = np.abs(i)
+    low = np.sqrt(a[a > 0].min() * a.max()) if (a > 0).any() else np.inf
+    fails = np.flatnonzero(~rising & (a < low))  # the rising run to the top starts after the last one
     start = int(fails[-1]) + 1 if len(fails) else 0
     if start == 0:
         return None

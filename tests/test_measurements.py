@@ -144,6 +144,20 @@ def test_noise_floor_found_below_the_monotonic_rise(tmp_path):
     assert "4 points at the noise floor" in c.notes[0] and "level 400 fA" in c.notes[0]
 
 
+def test_a_dip_among_large_currents_is_not_the_floor(tmp_path):
+    v = np.round(np.arange(1, 13) * 0.05, 3)
+    i = exponential(v)                                       # 7e-14 .. 2.6e-4 A
+    i[-2] = i[-1] * 1.01                                     # a dip at the top (heating, noise): not a floor
+    c = read_curve(write(tmp_path, "V [V], I [A]\n" + iv_rows(v, i)), "iv")
+    assert c.use.all() and c.notes == []
+
+
+def test_units_with_unicode_spellings(tmp_path):
+    c = read_curve(write(tmp_path, "V [V], I [µA], T [°C]\n0.1, 1, 25\n0.2, 2, 25\n0.3, 4, 25\n"), "iv")
+    assert c.y == pytest.approx([1e-6, 2e-6, 4e-6], rel=1e-15)          # 1 uA = 1e-6 A
+    assert c.temperature == pytest.approx([298.15] * 3, rel=1e-15)      # 25 degC = 298.15 K
+
+
 def test_noise_floor_level_also_applies_to_reverse_points(tmp_path):
     v = [-2.0, -1.0, -0.5, 0.05, 0.1, 0.15, 0.2, 0.3, 0.4]
     i = [-5e-12, -6e-13, -3e-13, 4e-13, -1e-13, 1e-12, 1e-11, 1e-10, 1e-9]
