@@ -56,6 +56,7 @@ KINDS = {
     "resistance": ("ohm", "0.5 ohm"),
     "current": ("A", "1 mA"),
     "voltage": ("V", "-1 V"),
+    "capacitance": ("F", "1 pF"),
     "energy": ("eV", "1.12 eV"),
     "temperature": ("K", "27 degC"),
 }
