@@ -399,6 +399,156 @@ def solve_command(device_file, dialect, current_range, reverse_bias, cv_range, f
     _emit(text, output, (device_file,))
 
 
+def _current_option(text, key):
+    """A current given on the command line, with its unit."""
+    if text is None:
+        return None
+    from .units import parse_quantity
+
+    try:
+        return parse_quantity(text, "current", key=key)
+    except InputError as e:
+        _fail(str(e))
+
+
+def _group_name(base, group):
+    """The model name of a group's row: the description's name and the group, as a SPICE identifier."""
+    import re
+
+    return description.check_name(f"{base}_{re.sub(r'[^A-Za-z0-9_]', '_', group)}"[:64], key="--by")
+
+
+def _calibrated_table(base, raw, results):
+    """The lot table of a --by calibration: one row per group, the description's keys as written, the
+    fitted ones (with their standard errors) in SI numbers with units in the header."""
+    import csv
+    import io
+
+    from .calibration import FITTABLE
+    from .units import KINDS
+
+    fitted = list(dict.fromkeys(k for _, cal in results for k in cal.fitted))
+    replaced = set(fitted)
+    for k in fitted:  # a fitted doping replaces a resistivity, a fitted lifetime a diffusion length
+        if k.endswith(".doping"):
+            replaced.add(k[0] + ".resistivity")
+        if k.endswith(".lifetime"):
+            replaced.add(k[0] + ".diffusion_length")
+    if str(raw.get("material", "silicon")).lower() != "silicon":
+        _fail("--by: the lot table lots reads takes the default material only")
+    kept = [k for k in raw if k not in replaced and k not in ("name", "material")]
+    units = {k: KINDS[FITTABLE[k]][0] for k in fitted}
+    out = io.StringIO()
+    w = csv.writer(out, lineterminator="\n")
+    w.writerow(["name", *kept, *[h for k in fitted for h in (f"{k} [{units[k]}]", f"{k}.stderr [{units[k]}]")]])
+    for group, cal in results:
+        row = [_group_name(base, group)] + [raw[k] if isinstance(raw[k], str) else repr(raw[k]) for k in kept]
+        for k in fitted:
+            f = cal.fitted.get(k)
+            row += [repr(f["value"]), repr(f["stderr"])] if f else ["", ""]
+        w.writerow(row)
+    return out.getvalue()
+
+
+@main.command("calibrate")
+@click.argument("device_file", metavar="DEVICE.toml", type=click.Path())
+@click.option("--iv", "iv_file", type=click.Path(), metavar="IV.csv",
+              help="Measured I-V: columns V and I with units in brackets (\"V [V]\", \"I [A]\"), optionally T, "
+                   "area, perimeter and a group column.")
+@click.option("--cv", "cv_file", type=click.Path(), metavar="CV.csv",
+              help="Measured C-V: columns V and C with units in brackets (\"V [V]\", \"C [pF]\").")
+@click.option("--free", metavar="KEYS",
+              help="Comma-separated description keys to fit (e.g. n.doping,n.lifetime,contact_resistance); the "
+                   "others are held. Default: what the data can determine (the light side's doping from C-V; "
+                   "the dominant lifetime, the recombination lifetime and the contact resistance from I-V "
+                   "where the data show them).")
+@click.option("--by", "by", metavar="COLUMN",
+              help="Calibrate each group of this column (e.g. wafer) and write a lot table, one row per group, "
+                   "that modelgen lots reads.")
+@click.option("--floor", metavar="CURRENT", help="The instrument's noise floor (e.g. \"1 pA\"); default found.")
+@click.option("--compliance", metavar="CURRENT",
+              help="The instrument's current compliance (e.g. \"10 mA\"); default found.")
+@click.option("--format", "fmt", type=click.Choice(["toml", "json"]), default="toml", show_default=True,
+              help="toml: the calibrated description (or with --by a CSV lot table). json: fitted values with "
+                   "standard errors, correlation and residuals per region, all SI.")
+@click.option("-o", "--output", type=click.Path(), help="Write to this file (atomically) instead of stdout.")
+@click.option("-q", "--quiet", is_flag=True, help="Do not print the fit summary and warnings on stderr.")
+def calibrate_command(device_file, iv_file, cv_file, free, by, floor, compliance, fmt, output, quiet):
+    """Fit a description's physics to measured I-V and C-V.
+
+    Starts from DEVICE.toml, fits the keys --free names (or what the data can
+    determine) by weighted least squares on log current and on capacitance
+    with the closed forms as the model, and writes the calibrated description
+    that every other command takes: the fitted values with their standard
+    errors as comments, the measurement files and the residuals in its header.
+    Points at the instrument's compliance or noise floor are left out with a
+    note. The fit summary, the correlations and a warning where two
+    parameters trade off go to stderr.
+
+    A calibration is a physics estimate from these measurements: confirm it
+    on further devices before sign-off.
+
+    \b
+    Examples:
+      modelgen calibrate examples/measured/testchip.toml --iv examples/measured/testchip_iv.csv \\
+          --cv examples/measured/testchip_cv.csv -o calibrated.toml
+      modelgen calibrate examples/measured/testchip.toml --iv examples/measured/lot_iv.csv \\
+          --cv examples/measured/lot_cv.csv --by wafer -o lot.csv
+    """
+    from . import calibration, measurements
+    from .textio import read_text
+
+    if iv_file is None and cv_file is None:
+        _fail("give measured data: --iv IV.csv and/or --cv CV.csv")
+    inputs = tuple(f for f in (device_file, iv_file, cv_file) if f)
+    _check_output(output, inputs)
+    floor_a, compliance_a = _current_option(floor, "--floor"), _current_option(compliance, "--compliance")
+    try:
+        device, raw = description.load_with_inputs(device_file)
+        original = read_text(device_file, "description", description.DESCRIPTION_LIMIT)
+        iv = measurements.read_curve(iv_file, "iv", group=by, floor=floor_a, compliance=compliance_a) \
+            if iv_file else None
+        cv = measurements.read_curve(cv_file, "cv", group=by) if cv_file else None
+    except InputError as e:
+        _fail(str(e))
+    keys = [k.strip() for k in free.split(",") if k.strip()] if free else None
+    notes = [*(iv.notes if iv else ()), *(cv.notes if cv else ())]
+    if by:
+        groups = sorted(set((iv.group if iv else [])) | set((cv.group if cv else [])))
+        results = []
+        for g in groups:
+            try:
+                cal = calibration.calibrate(device, iv.take(iv.group == g) if iv else None,
+                                            cv.take(cv.group == g) if cv else None, keys)
+            except InputError as e:
+                _fail(f"{by} {g}: {e}")
+            results.append((g, cal))
+        if fmt == "json":
+            text = cards.dumps({"by": by, "groups": {g: cal.document() for g, cal in results}, "notes": notes})
+        else:
+            text = _calibrated_table(device.name[0], raw, results)
+    else:
+        try:
+            cal = calibration.calibrate(device, iv, cv, keys)
+        except InputError as e:
+            _fail(str(e))
+        results = [("", cal)]
+        text = cards.dumps({**cal.document(), "measurement_notes": notes}) if fmt == "json" \
+            else cal.description_text(original, [f for f in (iv_file, cv_file) if f])
+    if not quiet:
+        for m in notes:
+            click.echo(f"modelgen: note: {m}", err=True)
+        for g, cal in results:
+            head = f"{by} {g}: " if by else ""
+            for k, f in cal.fitted.items():
+                rel = f["stderr"] / f["value"] if f["value"] else float("inf")
+                click.echo(f"modelgen: {head}{k} = {f['value']:.4g} +- {f['stderr']:.2g} (SI; {100 * rel:.2g} %)",
+                           err=True)
+            for w in cal.warnings:
+                click.echo(f"modelgen: {head}warning: {w}", err=True)
+    _emit(text, output, inputs)
+
+
 @main.command("check")
 @click.argument("card_file", metavar="FILE")
 @click.option("--simulator", type=click.Choice([*targets.SIMULATORS, "all"]), default=None,

@@ -1,0 +1,90 @@
+"""modelgen calibrate from the command line: one device, groups into a lot table, lots and check after it.
+
+The measured files are synthetic (examples/measured/make_measurements.py: the numerical solver on an invented
+device, with noise and a compliance), so the truth is known: the generator's inputs, read here from its own
+module, not from any result modelgen computed.
+"""
+
+from __future__ import annotations
+
+import csv
+import importlib.util
+import json
+
+import pytest
+
+from modelgen import description, extraction
+from support import ROOT, need, run
+
+MEASURED = ROOT / "examples" / "measured"
+DEVICE = MEASURED / "testchip.toml"
+
+
+def _truth():
+    spec = importlib.util.spec_from_file_location("make_measurements", MEASURED / "make_measurements.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)  # defines constants and functions only; main() is not run
+    return module
+
+
+def test_calibrated_description_loads_and_recovers_the_light_side(tmp_path):
+    out = tmp_path / "cal.toml"
+    res = run("calibrate", DEVICE, "--iv", MEASURED / "testchip_iv.csv", "--cv", MEASURED / "testchip_cv.csv",
+              "-o", out)
+    assert res.exit_code == 0, res.output
+    text = out.read_text()
+    assert text.startswith("# Calibrated by modelgen against: ")
+    assert "# calibrated: standard error" in text
+    r = extraction.derive(description.load(out))          # every other command takes it
+    true = description.load(DEVICE)
+    assert r.device.n.doping[0] == pytest.approx(true.n.doping[0], rel=0.02)   # the issue's 2 %
+    assert run("card", out, "-q").exit_code == 0
+
+
+def test_json_gives_values_errors_correlation_residuals():
+    res = run("calibrate", DEVICE, "--iv", MEASURED / "testchip_iv.csv", "--cv", MEASURED / "testchip_cv.csv",
+              "--free", "n.doping,n.lifetime", "--format", "json", "-q")
+    assert res.exit_code == 0, res.output
+    d = json.loads(res.stdout)
+    assert set(d["fitted"]) == {"n.doping", "n.lifetime"}
+    for v in d["fitted"].values():
+        assert v["value"] > 0 and v["stderr"] > 0
+    assert d["correlation"]["keys"] == ["n.doping", "n.lifetime"]
+    assert d["correlation"]["matrix"][0][0] == pytest.approx(1.0)
+    assert "capacitance" in d["residuals"] and "ideal" in d["residuals"]
+    assert any("compliance" in n for n in d["measurement_notes"])
+
+
+def test_groups_become_a_lot_table_that_lots_and_check_take(tmp_path):
+    """The issue's end to end: calibrate --by wafer, then lots, then check; each wafer's light-side doping
+    within 2.5 % of the value its data were made with."""
+    truth = _truth().WAFERS
+    table = tmp_path / "lot.csv"
+    res = run("calibrate", DEVICE, "--iv", MEASURED / "lot_iv.csv", "--cv", MEASURED / "lot_cv.csv",
+              "--by", "wafer", "-o", table)
+    assert res.exit_code == 0, res.output
+    rows = list(csv.DictReader(table.open()))
+    assert [r["name"] for r in rows] == [f"DTC_DEMO_{w}" for w in sorted(truth)]
+    for r in rows:
+        nd = float(r["n.doping [m^-3]"]) / 1e6
+        assert nd == pytest.approx(truth[r["name"].rsplit("_", 1)[1]][0], rel=0.025)
+        assert float(r["n.doping.stderr [m^-3]"]) > 0
+    lib = tmp_path / "lot.lib"
+    res = run("lots", table, "-o", lib, "--dialect", "ngspice")
+    assert res.exit_code == 0, res.output
+    need("ngspice")
+    res = run("check", lib)
+    assert res.exit_code == 0, res.output
+
+
+@pytest.mark.parametrize("args, words", [
+    ((), "--iv IV.csv and/or --cv CV.csv"),
+    (("--iv", MEASURED / "testchip_iv.csv", "--free", "n.colour"), "n.colour"),
+    (("--iv", MEASURED / "missing.csv"), "missing.csv"),
+    (("--iv", MEASURED / "testchip_iv.csv", "--compliance", "ten"), "--compliance"),
+])
+def test_bad_requests_are_one_line(args, words):
+    res = run("calibrate", DEVICE, *args)
+    assert res.exit_code == 2
+    assert words in res.output and "Traceback" not in res.output
+    assert len(res.output.strip().splitlines()) == 1
