@@ -361,6 +361,12 @@ class _Problem:
         if self.cvu is not None:
             self.cv_v = np.asarray(cv.v, float)[self.cvu]
             self.cv_y = np.asarray(cv.y, float)[self.cvu]
+            bad = np.flatnonzero(~(self.cv_y > 0))
+            if len(bad):
+                line = np.asarray(cv.line)[self.cvu][bad[0]]
+                raise InputError(f"capacitance {self.cv_y[bad[0]]:.4g} F is not positive: a capacitance to fit must "
+                                 f"be above zero (or the point marked unused)", file=getattr(cv, "file", None),
+                                 row=int(line), key="capacitance")
         self.n_iv = 0 if self.ivu is None else len(self.iv_v)
         self.n_cv = 0 if self.cvu is None else len(self.cv_v)
         self.weights = np.ones(2)
@@ -431,7 +437,8 @@ def calibrate(device, iv=None, cv=None, free=None, solver=False):
         raise InputError(f"calibration takes abrupt and linear profiles (the closed forms' own); got "
                          f"{device.profile[0]!r}", file=_at(device.source), key="profile")
     if _used(iv) is None and _used(cv) is None:
-        raise InputError("no usable measured points (I-V or C-V)", file=_at(device.source))
+        files = [c.file for c in (iv, cv) if c is not None and getattr(c, "file", None)]
+        raise InputError("no usable measured points (I-V or C-V)", file=", ".join(files) or _at(device.source))
     keys = list(default_free(device, iv, cv) if free is None else free)
     for k in keys:
         if k not in FITTABLE:
@@ -749,6 +756,7 @@ def _rewrite(original, cal, files):
                f"{k} {v['points']} points rms {100 * v['rms']:.2g} % worst {100 * v['worst']:+.2g} %"
                for k, v in cal.residuals.items()),
            "# the calibrated values are physics estimates from these measurements: check them on further devices"]
+    out += [f"# note: {_clean(n)}" for n in cal.notes if n.startswith("solver correction")]
     out += [f"# warning: {_clean(w)}" for w in cal.warnings]
     for i, line in enumerate(lines + [""]):
         out.extend(inserts.get(i, []))

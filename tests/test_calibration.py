@@ -272,3 +272,12 @@ def test_default_free_keys_with_repeated_biases(solved):
     rep = curve("iv", np.repeat(iv.v, 5), np.repeat(iv.y, 5), np.repeat(iv.use, 5))
     dev = description.from_mapping(start())
     assert calibration.default_free(dev, rep, cv) == calibration.default_free(dev, iv, cv)
+
+
+def test_non_positive_capacitance_is_refused_naming_file_and_line(solved):
+    """A capacitance at or below zero cannot be fitted on a relative scale: one clear error (common practice)."""
+    _, cv = measured(solved, 9, 0.01)
+    cv.y[3] = -1e-12
+    with pytest.raises(InputError) as e:
+        calibration.calibrate(start(), None, cv)
+    assert e.value.file == "cv.csv" and e.value.row == int(cv.line[3]) and "capacitance" in str(e.value)
