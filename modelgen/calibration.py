@@ -30,9 +30,15 @@ fit fairly. Parameters are fitted as logarithms (all are positive). One
 :func:`~modelgen.extraction.derive` call evaluates every parameter set the
 Jacobian needs (rows: parameter sets x measurement conditions).
 
-The numerical solver is not used as the forward model: where the closed forms
-do not hold within the data's range (strong high injection, profiles the
-closed forms only approximate) the residuals per region show it.
+With ``solver=True`` the numerical solver (:mod:`modelgen.physics.driftdiffusion`)
+corrects the closed forms by defect correction: the data are divided by the
+solver's ratio to the closed forms at the fitted values and fitted again, until
+the values settle, so that the solver reproduces the data at the fitted values
+(one solver solution per round; the closed forms give the steps, the Jacobian
+and the standard errors). Without it, where the closed forms do not hold within
+the data's range (strong high injection, the solver's band-gap narrowing) the
+residuals per region show it. Profiles the closed forms only approximate
+(erfc, gaussian, table) are refused.
 """
 
 from __future__ import annotations
@@ -126,21 +132,21 @@ def _clean(text):
 
 # --------------------------------------------------------------------------- conditions and rows
 
-def _conditions(device, curves):
-    """Distinct (temperature, area, perimeter) of the used points, and each curve's index into them."""
-    base = np.array([device.temperature[0], device.area[0], device.perimeter[0]])
+def _conditions(curves):
+    """Distinct (temperature, area, perimeter) of the curves' used points, and each curve's index into them.
+
+    A value the curve leaves NaN (the description's) is kept as -1, so that a fitted area stands for it.
+    """
     cols, index = [], []
-    for c in curves:
-        if c is None:
+    for c, u in curves:
+        if u is None:
             index.append(None)
             continue
-        u = np.asarray(c.use, bool)
-        at = np.stack([np.where(np.isfinite(np.asarray(getattr(c, k), float)[u]), np.asarray(getattr(c, k), float)[u],
-                                base[j]) for j, k in enumerate(("temperature", "area", "perimeter"))], axis=1)
+        at = np.stack([np.nan_to_num(np.asarray(getattr(c, k), float)[u], nan=-1.0)
+                       for k in ("temperature", "area", "perimeter")], axis=1)
         cols.append(at)
         index.append(len(cols) - 1)
-    allc = np.concatenate(cols) if cols else base[None, :]
-    conds, inverse = np.unique(allc, axis=0, return_inverse=True)
+    conds, inverse = np.unique(np.concatenate(cols), axis=0, return_inverse=True)
     inverse = np.asarray(inverse).ravel()
     out, start = [], 0
     for k in index:
@@ -167,14 +173,18 @@ def _set(dev, key, values):
 
 
 def _rows(base, keys, theta, conds):
-    """A Device of len(theta) x len(conds) rows: parameter set s (values, SI) under condition c at s*nc + c."""
+    """A Device of len(theta) x len(conds) rows: parameter set s (values, SI) under condition c at s*nc + c.
+
+    A condition's -1 (the description's value) takes the row's own: the base device's, or the fitted area.
+    """
     s, nc = len(theta), len(conds)
     dev = base.take(np.zeros(s * nc, int))
     for j, key in enumerate(keys):
         _set(dev, key, np.repeat(theta[:, j], nc))
-    dev.temperature[:] = np.tile(conds[:, 0], s)
-    dev.area[:] = np.tile(conds[:, 1], s)
-    dev.perimeter[:] = np.tile(conds[:, 2], s)
+    for j, name in enumerate(("temperature", "area", "perimeter")):
+        col = getattr(dev, name)
+        given = np.tile(conds[:, j], s)
+        col[:] = np.where(given >= 0, given, col)
     return dev
 
 
@@ -284,9 +294,10 @@ def default_free(device, iv=None, cv=None):
     """The keys the data can determine (see :data:`FREE_DEFAULT`).
 
     With C-V: the lighter side's doping (a side given by resistivity is fitted as doping). With forward I-V:
-    the lifetime of the side giving most of IS; ``recombination_lifetime`` where the lowest third of the forward
-    points (at least four) have a local ideality above :data:`RECOMBINATION_IDEALITY`; ``contact_resistance``
-    where the top four have one above :data:`BEND_IDEALITY`.
+    the lifetime of the side whose lifetime moves IS most; with eight or more distinct forward biases,
+    ``recombination_lifetime`` where the lowest third of them (at least four) have a local ideality above
+    :data:`RECOMBINATION_IDEALITY`, ``contact_resistance`` where the top four have one above
+    :data:`BEND_IDEALITY` (repeated biases count once, ln I averaged).
     """
     device = _device(device)
     res = derive(device)
@@ -297,11 +308,13 @@ def default_free(device, iv=None, cv=None):
     u = _used(iv)
     if u is not None:
         fwd = u & (iv.v > 0) & (iv.y > 0)
-        v, i = iv.v[fwd], iv.y[fwd]
+        # one point per distinct bias (ln I averaged over repeats), in increasing bias
+        v, inverse = np.unique(iv.v[fwd], return_inverse=True)
+        inverse = np.asarray(inverse).ravel()
         if len(v) >= 3:
-            order = np.argsort(v)
-            v, i = v[order], i[order]
-            t = np.where(np.isfinite(iv.temperature[fwd][order]), iv.temperature[fwd][order], device.temperature[0])
+            i = np.exp(np.bincount(inverse, np.log(iv.y[fwd])) / np.bincount(inverse))
+            temps = np.where(np.isfinite(iv.temperature[fwd]), iv.temperature[fwd], device.temperature[0])
+            t = np.bincount(inverse, temps) / np.bincount(inverse)
             free.append(f"{_dominant_side(device)}.lifetime")
             if len(v) >= 8:
                 low = slice(0, max(4, len(v) // 3))
@@ -337,9 +350,8 @@ class _Problem:
     def __init__(self, device, keys, iv, cv):
         self.base, self.keys = device, keys
         self.iv, self.cv = iv, cv
-        self.conds, (ic, cc) = _conditions(device, (iv if _used(iv) is not None else None,
-                                                    cv if _used(cv) is not None else None))
         self.ivu, self.cvu = _used(iv), _used(cv)
+        self.conds, (ic, cc) = _conditions(((iv, self.ivu), (cv, self.cvu)))
         self.iv_cond, self.cv_cond = ic, cc
         if self.ivu is not None:
             self.iv_v = np.asarray(iv.v, float)[self.ivu]
@@ -349,6 +361,12 @@ class _Problem:
         if self.cvu is not None:
             self.cv_v = np.asarray(cv.v, float)[self.cvu]
             self.cv_y = np.asarray(cv.y, float)[self.cvu]
+            bad = np.flatnonzero(~(self.cv_y > 0))
+            if len(bad):
+                line = np.asarray(cv.line)[self.cvu][bad[0]]
+                raise InputError(f"capacitance {self.cv_y[bad[0]]:.4g} F is not positive: a capacitance to fit must "
+                                 f"be above zero (or the point marked unused)", file=getattr(cv, "file", None),
+                                 row=int(line), key="capacitance")
         self.n_iv = 0 if self.ivu is None else len(self.iv_v)
         self.n_cv = 0 if self.cvu is None else len(self.cv_v)
         self.weights = np.ones(2)
@@ -377,7 +395,7 @@ class _Problem:
         return r * w
 
 
-def calibrate(device, iv=None, cv=None, free=None):
+def calibrate(device, iv=None, cv=None, free=None, solver=False):
     """Fit the description's keys ``free`` to a measured I-V and/or C-V curve.
 
     Parameters
@@ -390,6 +408,9 @@ def calibrate(device, iv=None, cv=None, free=None):
         with, per point, temperature, area, perimeter (NaN: the description's) and a use flag.
     free : list of str, optional
         Keys of :data:`FITTABLE`; default :func:`default_free`.
+    solver : bool
+        Correct the closed forms by the numerical solver (:func:`_solver_rounds`): for data where they do not
+        hold (high injection, the solver's band-gap narrowing); a solver solution per round.
 
     Returns
     -------
@@ -416,7 +437,8 @@ def calibrate(device, iv=None, cv=None, free=None):
         raise InputError(f"calibration takes abrupt and linear profiles (the closed forms' own); got "
                          f"{device.profile[0]!r}", file=_at(device.source), key="profile")
     if _used(iv) is None and _used(cv) is None:
-        raise InputError("no usable measured points (I-V or C-V)", file=_at(device.source))
+        files = [c.file for c in (iv, cv) if c is not None and getattr(c, "file", None)]
+        raise InputError("no usable measured points (I-V or C-V)", file=", ".join(files) or _at(device.source))
     keys = list(default_free(device, iv, cv) if free is None else free)
     for k in keys:
         if k not in FITTABLE:
@@ -458,18 +480,99 @@ def calibrate(device, iv=None, cv=None, free=None):
     if not keys:
         raise InputError("nothing to fit: give free keys, or data that determine some (see default_free)")
     fits = []
-    sol = least_squares(fun, x0, jac=jac, bounds=(lo, hi), method="trf", x_scale=1.0, ftol=1e-12, xtol=1e-12,
-                        gtol=1e-12, max_nfev=200)
-    fits.append(sol)
+
+    def run(x):
+        fits.append(least_squares(fun, x, jac=jac, bounds=(lo, hi), method="trf", x_scale=1.0, ftol=1e-12,
+                                  xtol=1e-12, gtol=1e-12, max_nfev=200))
+        return fits[-1]
+
+    sol = run(x0)
     r = evaluate(sol.x)[0]
     for j, (a, b) in enumerate(((0, prob.n_iv), (prob.n_iv, prob.n_iv + prob.n_cv))):
         if b > a:
             prob.weights[j] = 1.0 / max(float(np.sqrt(np.mean(r[a:b] ** 2))), 1e-6)
     if prob.n_iv and prob.n_cv:
-        sol = least_squares(fun, sol.x, jac=jac, bounds=(lo, hi), method="trf", x_scale=1.0, ftol=1e-12,
-                            xtol=1e-12, gtol=1e-12, max_nfev=200)
-        fits.append(sol)
-    return _report(prob, keys, sol, jac, fits, device)
+        sol = run(sol.x)
+    notes = []
+    if solver:
+        sol = _solver_rounds(prob, sol, run, cache, notes)
+    return _report(prob, keys, sol, jac, fits, device, notes)
+
+
+#: Most rounds of the solver correction.
+SOLVER_ROUNDS = 4
+
+
+def _solver_rounds(prob, sol, run, cache, notes):
+    """Defect correction by the numerical solver: the data divided by the solver's ratio to the closed forms at
+    the fitted values, then fitted again by the closed forms, until the values move less than 0.01 %.
+
+    At the fixed point the solver, not the closed forms, reproduces the measured data at the fitted values;
+    the closed forms serve only for the steps and the Jacobian (where they differ from the solver by a ratio
+    that changes slowly with the parameters). One condition only (the description's temperature, area and
+    perimeter for every point).
+    """
+    from .physics.driftdiffusion import SolverError
+
+    if len(prob.conds) != 1:
+        notes.append("solver correction skipped: the points are at several temperatures, areas or perimeters")
+        return sol
+    y_iv = prob.iv_y.copy() if prob.n_iv else None
+    y_cv = prob.cv_y.copy() if prob.n_cv else None
+    worst = (0.0, 0.0)
+    for rounds in range(1, SOLVER_ROUNDS + 1):
+        try:
+            r_iv, r_cv = _solver_ratio(prob, np.exp(sol.x))
+        except SolverError as e:
+            notes.append(f"solver correction stopped: {_clean(e)}")
+            return sol
+        worst = (float(np.max(np.abs(r_iv - 1))) if prob.n_iv else 0.0,
+                 float(np.max(np.abs(r_cv - 1))) if prob.n_cv else 0.0)
+        if prob.n_iv:
+            prob.iv_y = y_iv / r_iv
+        if prob.n_cv:
+            prob.cv_y = y_cv / r_cv
+        cache.clear()
+        before = sol.x
+        sol = run(sol.x)
+        if np.max(np.abs(sol.x - before)) < 1e-4:
+            break
+    notes.append(f"solver correction: {rounds} rounds; the solver departs from the closed forms at the fitted "
+                 f"values by up to {100 * worst[0]:.3g} % in the I-V and {100 * worst[1]:.3g} % in the C-V "
+                 f"(residuals are against the data so corrected)")
+    return sol
+
+
+def _solver_ratio(prob, theta):
+    """The solver's current and capacitance over the closed forms', at the data's biases, for values ``theta``.
+
+    Forward points are solved at V - I RC (I the closed forms' current, RC the contact resistance, outside
+    the solver's 1-D device) and carried from the solver's terminal bias to the data's along the closed forms'
+    slope. Reverse and C-V points are solved at their biases.
+    """
+    from .physics import driftdiffusion
+    from .structures import structure_for
+
+    res = derive(_rows(prob.base, prob.keys, theta[None, :], prob.conds))
+    s = structure_for(res, 0)
+    zi, zc = np.zeros(prob.n_iv, int), np.zeros(prob.n_cv, int)
+    with np.errstate(all="ignore"):
+        i_cf = terminal_current(res, zi, prob.iv_v)[0] if prob.n_iv else np.empty(0)
+        c_cf = capacitance(res, zc, prob.cv_v) if prob.n_cv else np.empty(0)
+    v_iv = prob.iv_v if prob.n_iv else np.empty(0)
+    rc = float(res.device.contact_resistance[0])
+    vb = np.where(v_iv > 0, v_iv - i_cf * rc, v_iv)
+    v_cv = prob.cv_v if prob.n_cv else np.empty(0)
+    out = driftdiffusion.solve(s, np.concatenate([vb, v_cv]),
+                               capacitance=np.concatenate([np.zeros(len(vb), bool), np.ones(len(v_cv), bool)]))
+    term, cur = out.terminal_bias[:len(vb)], out.current[:len(vb)]
+    # the solver's point lies at its terminal bias, a little off the data's: carried to the data's bias along
+    # the closed forms' own slope d ln I / dV there (a step of about I RC times their relative difference)
+    with np.errstate(all="ignore"):
+        step = 1e-4
+        slope = (np.log(np.abs(terminal_current(res, zi, v_iv + step)[0])) - np.log(np.abs(i_cf))) / step
+    i_s = np.where(v_iv > 0, cur * np.exp((v_iv - term) * slope), cur)
+    return i_s / i_cf, out.capacitance[len(vb):] / c_cf
 
 
 def _at(seq):
@@ -499,14 +602,14 @@ def _start(device, res, key):
     return float(getattr(device, key)[0])
 
 
-def _report(prob, keys, sol, jac, fits, device):
+def _report(prob, keys, sol, jac, fits, device, notes):
     """The Calibration: values, standard errors, correlation, warnings, residuals per region."""
     k = len(keys)
     jw = jac(sol.x)
     rw = sol.fun
     dof = max(len(rw) - k, 1)
     s2 = float(rw @ rw) / dof
-    notes, warnings = [], []
+    warnings = []
     try:
         cov = s2 * np.linalg.inv(jw.T @ jw)
     except np.linalg.LinAlgError:
@@ -535,10 +638,7 @@ def _report(prob, keys, sol, jac, fits, device):
     notes.append("weights: I-V residuals in ln|I| x {:.3g}, C-V relative x {:.3g} (each the inverse of its rms after "
                  "a first pass)".format(*prob.weights))
     notes.append("the fitted values are physics estimates from these measurements: check them on further devices")
-    calibrated = _rows(device, keys, np.exp(sol.x)[None, :], np.array([[device.temperature[0], device.area[0],
-                                                                        device.perimeter[0]]]))
-    if "area" in keys:
-        calibrated.area[:] = np.exp(sol.x)[keys.index("area")]
+    calibrated = _rows(device, keys, np.exp(sol.x)[None, :], np.full((1, 3), -1.0))
     return Calibration(fitted=fitted, correlation={"keys": list(keys), "matrix": corr.tolist()},
                        residuals=residuals, warnings=warnings, notes=notes,
                        iterations=sum(int(f.nfev) for f in fits), device=calibrated)
@@ -656,6 +756,7 @@ def _rewrite(original, cal, files):
                f"{k} {v['points']} points rms {100 * v['rms']:.2g} % worst {100 * v['worst']:+.2g} %"
                for k, v in cal.residuals.items()),
            "# the calibrated values are physics estimates from these measurements: check them on further devices"]
+    out += [f"# note: {_clean(n)}" for n in cal.notes if n.startswith("solver correction")]
     out += [f"# warning: {_clean(w)}" for w in cal.warnings]
     for i, line in enumerate(lines + [""]):
         out.extend(inserts.get(i, []))
