@@ -514,7 +514,7 @@ def _solver_rounds(prob, sol, run, cache, notes):
     """
     from .physics.driftdiffusion import SolverError
 
-    if len(prob.conds) != 1:
+    if _distinct_conditions(prob) != 1:
         notes.append("solver correction skipped: the points are at several temperatures, areas or perimeters")
         return sol
     y_iv = prob.iv_y.copy() if prob.n_iv else None
@@ -541,6 +541,18 @@ def _solver_rounds(prob, sol, run, cache, notes):
                  f"values by up to {100 * worst[0]:.3g} % in the I-V and {100 * worst[1]:.3g} % in the C-V "
                  f"(residuals are against the data so corrected)")
     return sol
+
+
+def _distinct_conditions(prob):
+    """How many distinct (temperature, area, perimeter) the points stand for, a curve's "the description's"
+    (NaN) counted as the description's own value (unless that value is itself fitted)."""
+    eff = np.array(prob.conds, float)
+    base = prob.base
+    own = (float(base.temperature[0]), float(base.area[0]), float(np.nan_to_num(base.perimeter[0], nan=-1.0)))
+    for j, (key, value) in enumerate(zip(("temperature", "area", "perimeter"), own)):
+        if key not in prob.keys:
+            eff[eff[:, j] < 0, j] = value
+    return len(np.unique(np.round(eff, 12), axis=0))
 
 
 def _solver_ratio(prob, theta):

@@ -468,12 +468,16 @@ def _calibrated_table(base, raw, results):
 @click.option("--floor", metavar="CURRENT", help="The instrument's noise floor (e.g. \"1 pA\"); default found.")
 @click.option("--compliance", metavar="CURRENT",
               help="The instrument's current compliance (e.g. \"10 mA\"); default found.")
+@click.option("--physics", type=click.Choice(["closed", "numeric"]), default="closed", show_default=True,
+              help="closed: the closed forms are the model. numeric: the closed forms corrected, round by round, "
+                   "by the numerical solver at the fitted values, so that the solver reproduces the data (for "
+                   "data at one temperature and geometry; several seconds).")
 @click.option("--format", "fmt", type=click.Choice(["toml", "json"]), default="toml", show_default=True,
               help="toml: the calibrated description (or with --by a CSV lot table). json: fitted values with "
                    "standard errors, correlation and residuals per region, all SI.")
 @click.option("-o", "--output", type=click.Path(), help="Write to this file (atomically) instead of stdout.")
 @click.option("-q", "--quiet", is_flag=True, help="Do not print the fit summary and warnings on stderr.")
-def calibrate_command(device_file, iv_file, cv_file, free, by, floor, compliance, fmt, output, quiet):
+def calibrate_command(device_file, iv_file, cv_file, free, by, floor, compliance, physics, fmt, output, quiet):
     """Fit a description's physics to measured I-V and C-V.
 
     Starts from DEVICE.toml, fits the keys --free names (or what the data can
@@ -519,7 +523,8 @@ def calibrate_command(device_file, iv_file, cv_file, free, by, floor, compliance
         for g in groups:
             try:
                 cal = calibration.calibrate(device, iv.take(iv.group == g) if iv else None,
-                                            cv.take(cv.group == g) if cv else None, keys)
+                                            cv.take(cv.group == g) if cv else None, keys,
+                                            solver=physics == "numeric")
             except InputError as e:
                 _fail(f"{by} {g}: {e}")
             results.append((g, cal))
@@ -529,7 +534,7 @@ def calibrate_command(device_file, iv_file, cv_file, free, by, floor, compliance
             text = _calibrated_table(device.name[0], raw, results)
     else:
         try:
-            cal = calibration.calibrate(device, iv, cv, keys)
+            cal = calibration.calibrate(device, iv, cv, keys, solver=physics == "numeric")
         except InputError as e:
             _fail(str(e))
         results = [("", cal)]
