@@ -64,7 +64,9 @@ FREE_DEFAULT = ("light side's doping (with C-V)", "dominant side's lifetime (wit
 #: The keys that may be fitted, with their units kind for the written description.
 FITTABLE = {"p.doping": "concentration", "n.doping": "concentration", "p.lifetime": "time",
             "n.lifetime": "time", "recombination_lifetime": "time", "contact_resistance": "resistance",
-            "area": "area", "grading": "grading"}
+            "area": "area", "grading": "grading", "lifetime_temperature_exponent": "number"}
+#: Keys that may be zero or negative, fitted as ln(value + offset): the offset keeps the log-space fit.
+_OFFSET = {"lifetime_temperature_exponent": 20.0}
 #: Local ideality factor of the lowest forward points above which recombination is taken as seen.
 RECOMBINATION_IDEALITY = 1.3
 #: Local ideality factor of the top forward points above which series resistance is taken as seen.
@@ -168,6 +170,8 @@ def _set(dev, key, values):
         side = getattr(dev, key[0])
         side.lifetime[:] = values
         side.diffusion_length[:] = np.nan
+    elif key == "lifetime_temperature_exponent":
+        dev.lifetime_exponent[:] = np.asarray(values) - _OFFSET[key]
     else:
         getattr(dev, key)[:] = values
 
@@ -294,7 +298,8 @@ def default_free(device, iv=None, cv=None):
     """The keys the data can determine (see :data:`FREE_DEFAULT`).
 
     With C-V: the lighter side's doping (a side given by resistivity is fitted as doping). With forward I-V:
-    the lifetime of the side whose lifetime moves IS most; with eight or more distinct forward biases,
+    the lifetime of the side whose lifetime moves IS most, and with forward curves at two or more
+    temperatures ``lifetime_temperature_exponent``; with eight or more distinct forward biases,
     ``recombination_lifetime`` where the lowest third of them (at least four) have a local ideality above
     :data:`RECOMBINATION_IDEALITY`, ``contact_resistance`` where the top four have one above
     :data:`BEND_IDEALITY` (repeated biases count once, ln I averaged).
@@ -316,6 +321,8 @@ def default_free(device, iv=None, cv=None):
             temps = np.where(np.isfinite(iv.temperature[fwd]), iv.temperature[fwd], device.temperature[0])
             t = np.bincount(inverse, temps) / np.bincount(inverse)
             free.append(f"{_dominant_side(device)}.lifetime")
+            if len(np.unique(np.round(temps, 6))) >= 2:  # curves at several temperatures: the lifetime's law
+                free.append("lifetime_temperature_exponent")
             if len(v) >= 8:
                 low = slice(0, max(4, len(v) // 3))
                 if _ideality(v[low], i[low], t[low]) > RECOMBINATION_IDEALITY:
@@ -594,7 +601,8 @@ def _at(seq):
 def _bounds(key):
     spec = description.KEYS[key]
     lo, hi = spec.plausible
-    return lo, hi
+    shift = _OFFSET.get(key, 0.0)
+    return lo + shift, hi + shift
 
 
 def _start(device, res, key):
@@ -611,6 +619,8 @@ def _start(device, res, key):
     if key == "contact_resistance":
         rc = float(device.contact_resistance[0])
         return rc if rc > 0 else max(float(res.params["RS"][0]), 1e-2)
+    if key == "lifetime_temperature_exponent":
+        return float(np.nan_to_num(device.lifetime_exponent[0])) + _OFFSET[key]
     return float(getattr(device, key)[0])
 
 
@@ -628,8 +638,9 @@ def _report(prob, keys, sol, jac, fits, device, notes):
         cov = np.full((k, k), np.inf)
         warnings.append("the Jacobian is singular: the free parameters are not determined by these data together")
     sd_log = np.sqrt(np.abs(np.diag(cov)))
-    values = np.exp(sol.x)
-    stderr = values * sd_log  # delta method: d value = value d ln(value)
+    shifted = np.exp(sol.x)
+    stderr = shifted * sd_log  # delta method: d value = (value + offset) d ln(value + offset)
+    values = shifted - np.array([_OFFSET.get(key, 0.0) for key in keys])
     with np.errstate(all="ignore"):
         corr = cov / np.outer(sd_log, sd_log)
     corr = np.where(np.isfinite(corr), corr, np.nan)
@@ -640,6 +651,10 @@ def _report(prob, keys, sol, jac, fits, device, notes):
                 warnings.append(f"{keys[a]} and {keys[b]} trade off (correlation {corr[a, b]:+.3f}): these data "
                                 f"do not separate them; fix one of them or add data that do")
     for key, v, e in zip(keys, values, stderr):
+        if key in _OFFSET:
+            if not e <= 1.0:
+                warnings.append(f"{key}: the standard error ({e:.3g}) exceeds 1: not determined by these data")
+            continue
         if not e <= v:
             warnings.append(f"{key}: the standard error ({e:.3g}) exceeds the value ({v:.3g}): not determined by "
                             f"these data")
@@ -736,6 +751,16 @@ def _rewrite(original, cal, files):
     for key, fit in cal.fitted.items():
         kind = FITTABLE[key]
         spot = where.get(key)
+        if kind == "number":  # a plain number, its standard error beside it
+            text = f"{key.split('.', 1)[-1]} = {fit['value']:.6g}"
+            comment = f"# calibrated: standard error {fit['stderr']:.2g}"
+            if spot is not None:
+                lead = lines[spot[0]][:len(lines[spot[0]]) - len(lines[spot[0]].lstrip())]
+                edits[spot[0]] = [lead + comment, lead + text]
+            else:
+                at = first_head if first_head is not None else len(lines)
+                inserts.setdefault(at, []).extend([comment, text])
+            continue
         alt = None
         if spot is None and key.endswith(".doping"):
             alt = where.get(key[0] + ".resistivity")

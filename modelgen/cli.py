@@ -437,10 +437,10 @@ def _calibrated_table(base, raw, results):
     if str(raw.get("material", "silicon")).lower() != "silicon":
         _fail("--by: the lot table lots reads takes the default material only")
     kept = [k for k in raw if k not in replaced and k not in ("name", "material")]
-    units = {k: KINDS[FITTABLE[k]][0] for k in fitted}
+    units = {k: f" [{KINDS[FITTABLE[k]][0]}]" if FITTABLE[k] in KINDS else "" for k in fitted}
     out = io.StringIO()
     w = csv.writer(out, lineterminator="\n")
-    w.writerow(["name", *kept, *[h for k in fitted for h in (f"{k} [{units[k]}]", f"{k}.stderr [{units[k]}]")]])
+    w.writerow(["name", *kept, *[h for k in fitted for h in (f"{k}{units[k]}", f"{k}.stderr{units[k]}")]])
     for group, cal in results:
         row = [_group_name(base, group)] + [raw[k] if isinstance(raw[k], str) else repr(raw[k]) for k in kept]
         for k in fitted:

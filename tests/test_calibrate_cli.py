@@ -106,3 +106,19 @@ def test_numeric_physics_recovers_each_wafer(tmp_path):
         rc = f["contact_resistance"]
         assert abs(rc["value"] - 2.0) < 3 * rc["stderr"]
         assert groups[wafer]["notes"][0].startswith("solver correction: ")
+
+
+def test_curves_at_several_temperatures_fit_the_lifetime_law(tmp_path):
+    """The test chip's curves at -40, 27 and 125 degC free the lifetime temperature exponent by default; the
+    data were made with lifetimes that do not change with temperature (exponent 0: the generator's
+    description leaves it at its default), and the fit finds it within three standard errors of 0."""
+    out = tmp_path / "cal.toml"
+    res = run("calibrate", DEVICE, "--iv", MEASURED / "testchip_iv.csv", "--cv", MEASURED / "testchip_cv.csv",
+              "--format", "json", "-q")
+    assert res.exit_code == 0, res.output
+    f = json.loads(res.stdout)["fitted"]["lifetime_temperature_exponent"]
+    assert abs(f["value"]) < 3 * f["stderr"] + 1e-3 and f["stderr"] < 0.5
+    res = run("calibrate", DEVICE, "--iv", MEASURED / "testchip_iv.csv", "--cv", MEASURED / "testchip_cv.csv",
+              "-o", out)
+    assert res.exit_code == 0, res.output
+    assert description.load(out).lifetime_exponent[0] == pytest.approx(f["value"], rel=1e-5)
