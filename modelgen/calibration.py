@@ -64,7 +64,8 @@ FREE_DEFAULT = ("light side's doping (with C-V)", "dominant side's lifetime (wit
 #: The keys that may be fitted, with their units kind for the written description.
 FITTABLE = {"p.doping": "concentration", "n.doping": "concentration", "p.lifetime": "time",
             "n.lifetime": "time", "recombination_lifetime": "time", "contact_resistance": "resistance",
-            "area": "area", "grading": "grading", "lifetime_temperature_exponent": "number"}
+            "area": "area", "grading": "grading", "lifetime_temperature_exponent": "number",
+            "junction_depth": "length"}
 #: Keys that may be zero or negative, fitted as ln(value + offset): the offset keeps the log-space fit.
 _OFFSET = {"lifetime_temperature_exponent": 20.0}
 #: Local ideality factor of the lowest forward points above which recombination is taken as seen.
@@ -81,7 +82,7 @@ _BISECTION = 44
 _STEP = 1e-4
 #: Smallest contact resistance fitted [ohm] (a log-space parameter needs a floor).
 _RC_FLOOR = 1e-6
-_UNIT = {"concentration": "cm^-3", "resistance": "ohm", "area": "mm^2", "grading": "cm^-4"}
+_UNIT = {"concentration": "cm^-3", "resistance": "ohm", "area": "mm^2", "grading": "cm^-4", "length": "um"}
 
 
 @dataclass
@@ -92,7 +93,9 @@ class Calibration:
     ----------
     fitted : {key: {"value": float, "stderr": float}}
     correlation : {"keys": [key, ...], "matrix": [[float]]}
-    residuals : {region: {"points": int, "rms": float, "worst": float}} (relative errors)
+    residuals : {region: {"points": int, "rms": float, "worst": float}} (relative errors); with I-V at several
+        temperatures also "ideal by temperature": {"300.15 K": median relative residual, ...}, the check of
+        IS(T) (the band-gap, ni and lifetime laws) after the fit.
     warnings, notes : lists of plain sentences.
     iterations : function evaluations of the least-squares solver (both passes).
     device : the calibrated Device (length 1).
@@ -299,7 +302,8 @@ def default_free(device, iv=None, cv=None):
 
     With C-V: the lighter side's doping (a side given by resistivity is fitted as doping). With forward I-V:
     the lifetime of the side whose lifetime moves IS most, and with forward curves at two or more
-    temperatures ``lifetime_temperature_exponent``; with eight or more distinct forward biases,
+    temperatures ``lifetime_temperature_exponent``; with curves of two or more perimeter-to-area ratios,
+    ``junction_depth`` (the sidewall's height, which splits the perimeter's share from the area's); with eight or more distinct forward biases,
     ``recombination_lifetime`` where the lowest third of them (at least four) have a local ideality above
     :data:`RECOMBINATION_IDEALITY`, ``contact_resistance`` where the top four have one above
     :data:`BEND_IDEALITY` (repeated biases count once, ln I averaged).
@@ -310,6 +314,8 @@ def default_free(device, iv=None, cv=None):
     light = "p" if res.derived["p"]["doping"][0] <= res.derived["n"]["doping"][0] else "n"
     if _used(cv) is not None:
         free.append(f"{light}.doping")
+    if _geometries(iv, cv) >= 2:  # several perimeter-to-area ratios: the sidewall height splits them
+        free.append("junction_depth")
     u = _used(iv)
     if u is not None:
         fwd = u & (iv.v > 0) & (iv.y > 0)
@@ -330,6 +336,18 @@ def default_free(device, iv=None, cv=None):
                 if _ideality(v[-4:], i[-4:], t[-4:]) > BEND_IDEALITY:
                     free.append("contact_resistance")
     return free
+
+
+def _geometries(*curves):
+    """How many distinct perimeter-to-area ratios the curves' used points were measured at."""
+    ratios = []
+    for c in curves:
+        u = _used(c)
+        if u is None:
+            continue
+        r = np.asarray(c.perimeter, float)[u] / np.asarray(c.area, float)[u]
+        ratios.append(r[np.isfinite(r) & (r > 0)])
+    return len(np.unique(np.round(np.concatenate(ratios), 6))) if ratios else 0
 
 
 def _dominant_side(device):
@@ -700,6 +718,16 @@ def _regions(prob, r, res):
             e = rel[m]
             out[name] = {"points": int(m.sum()), "rms": float(np.sqrt(np.mean(e ** 2))),
                          "worst": float(e[np.argmax(np.abs(e))])}
+    if prob.n_iv:
+        # the saturation current's temperature law, checked: the ideal region's median residual per temperature
+        # (the band-gap and ni models carry IS(T); a trend here says they, or the lifetime law, miss the data)
+        t = np.asarray(prob.conds, float)[prob.iv_cond, 0]
+        t = np.where(t < 0, float(prob.base.temperature[0]), t)
+        ideal = region[:prob.n_iv] == "ideal"
+        temps = np.unique(t[ideal])
+        if len(temps) >= 2:
+            out["ideal by temperature"] = {f"{x:.2f} K": float(np.median(rel[:prob.n_iv][ideal & (t == x)]))
+                                           for x in temps}
     return out
 
 
@@ -791,7 +819,10 @@ def _rewrite(original, cal, files):
     out = [f"# Calibrated by modelgen against: {', '.join(_clean(f) for f in files)}",
            "# residuals (model against measured, relative): " + "; ".join(
                f"{k} {v['points']} points rms {100 * v['rms']:.2g} % worst {100 * v['worst']:+.2g} %"
-               for k, v in cal.residuals.items()),
+               for k, v in cal.residuals.items() if "points" in v),
+           *([("# IS(T) check, the ideal region's median residual per temperature: " + "; ".join(
+               f"{t} {100 * r:+.2g} %" for t, r in cal.residuals["ideal by temperature"].items()))]
+             if "ideal by temperature" in cal.residuals else []),
            "# the calibrated values are physics estimates from these measurements: check them on further devices"]
     out += [f"# note: {_clean(n)}" for n in cal.notes if n.startswith("solver correction")]
     out += [f"# warning: {_clean(w)}" for w in cal.warnings]

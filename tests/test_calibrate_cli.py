@@ -30,7 +30,7 @@ def _truth():
 def test_calibrated_description_loads_and_recovers_the_light_side(tmp_path):
     out = tmp_path / "cal.toml"
     res = run("calibrate", DEVICE, "--iv", MEASURED / "testchip_iv.csv", "--cv", MEASURED / "testchip_cv.csv",
-              "-o", out)
+              "--free", "n.doping,n.lifetime,recombination_lifetime", "-o", out)
     assert res.exit_code == 0, res.output
     text = out.read_text()
     assert text.startswith("# Calibrated by modelgen against: ")
@@ -116,9 +116,25 @@ def test_curves_at_several_temperatures_fit_the_lifetime_law(tmp_path):
     res = run("calibrate", DEVICE, "--iv", MEASURED / "testchip_iv.csv", "--cv", MEASURED / "testchip_cv.csv",
               "--format", "json", "-q")
     assert res.exit_code == 0, res.output
-    f = json.loads(res.stdout)["fitted"]["lifetime_temperature_exponent"]
+    doc = json.loads(res.stdout)
+    f = doc["fitted"]["lifetime_temperature_exponent"]
     assert abs(f["value"]) < 3 * f["stderr"] + 1e-3 and f["stderr"] < 0.5
+    # the IS(T) check after the fit: the ideal region's median residual at each of the three temperatures
+    by_t = doc["residuals"]["ideal by temperature"]
+    assert sorted(by_t) == ["233.15 K", "300.15 K", "398.15 K"]
+    assert all(abs(r) < 0.05 for r in by_t.values()), by_t
     res = run("calibrate", DEVICE, "--iv", MEASURED / "testchip_iv.csv", "--cv", MEASURED / "testchip_cv.csv",
               "-o", out)
     assert res.exit_code == 0, res.output
     assert description.load(out).lifetime_exponent[0] == pytest.approx(f["value"], rel=1e-5)
+
+
+def test_several_geometries_separate_the_sidewall():
+    """Three perimeter-to-area ratios free the sidewall height (junction_depth) by default; the data were
+    made with 0.5 um (the generator's description) and the fit finds it within two standard errors."""
+    res = run("calibrate", DEVICE, "--iv", MEASURED / "testchip_iv.csv", "--cv", MEASURED / "testchip_cv.csv",
+              "--format", "json", "-q")
+    assert res.exit_code == 0, res.output
+    f = json.loads(res.stdout)["fitted"]["junction_depth"]
+    true = description.load(DEVICE).junction_depth[0]
+    assert abs(f["value"] - true) < 2 * f["stderr"] and f["stderr"] < 0.3 * true
