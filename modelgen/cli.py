@@ -549,6 +549,9 @@ def calibrate_command(device_file, iv_file, cv_file, free, by, floor, compliance
                 rel = f["stderr"] / f["value"] if f["value"] else float("inf")
                 click.echo(f"modelgen: {head}{k} = {f['value']:.4g} +- {f['stderr']:.2g} (SI; {100 * rel:.2g} %)",
                            err=True)
+            click.echo(f"modelgen: {head}residuals (model against measured): " + "; ".join(
+                f"{k} rms {100 * v['rms']:.2g} % worst {100 * v['worst']:+.2g} % ({v['points']} points)"
+                for k, v in cal.residuals.items() if "points" in v), err=True)
             for w in cal.warnings:
                 click.echo(f"modelgen: {head}warning: {w}", err=True)
     _emit(text, output, inputs)

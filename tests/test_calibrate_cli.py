@@ -38,6 +38,7 @@ def test_calibrated_description_loads_and_recovers_the_light_side(tmp_path):
     r = extraction.derive(description.load(out))          # every other command takes it
     true = description.load(DEVICE)
     assert r.device.n.doping[0] == pytest.approx(true.n.doping[0], rel=0.02)   # the 2 %
+    assert "residuals (model against measured): recombination rms" in res.output  # printed, as in the file
     assert run("card", out, "-q").exit_code == 0
 
 
