@@ -172,6 +172,12 @@ def scalable_params(result: Result, i=0, dialect="ngspice"):
     return values, notes
 
 
+#: A standing header line: what the simulator scales, and the share it cannot.
+SCALING = ("scaling: ngspice multiplies IS, ISR, IKF, CJO by area and JSW, CJSW by pj, and divides RS by area; "
+           "the sidewall's share P xj / (A + P xj) of the recombination current (ISR) and of the knee (IKF) is "
+           "not carried, so at small or narrow geometries those are underestimated by about that share")
+
+
 def instance_line(name):
     """The instance syntax a scalable card is used with (a header comment)."""
     return f"instance: D1 a k {name} area=<bottom area, m^2> pj=<perimeter, m>"
@@ -200,7 +206,7 @@ def scalable_card(result: Result, i=0, dialect="ngspice", name=None):
     name = result.device.name[i] if name is None else name
     units = "; ".join(f"{k} [{UNITS[k]}]" for k in values)
     header = file_header(dialect, f"{name}: scalable diode model card", 1, result=result,
-                         extra=(instance_line(name), f"units: {units}"))
+                         extra=(instance_line(name), f"units: {units}", SCALING))
     src = result.device.source[i] if len(result.device.source) else ""
     lines = [f"* {name}: scalable" + (f", from {safe(str(src).rsplit('/', 1)[-1])}" if src else "")]
     for n in notes:
@@ -216,4 +222,4 @@ def scalable_card(result: Result, i=0, dialect="ngspice", name=None):
         header=header, sections=[{"name": None, "body": body}])
 
 
-__all__ = ["DIALECTS", "UNITS", "geometry_notes", "instance_line", "scalable_card", "scalable_params"]
+__all__ = ["DIALECTS", "SCALING", "UNITS", "geometry_notes", "instance_line", "scalable_card", "scalable_params"]

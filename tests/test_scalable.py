@@ -48,6 +48,7 @@ def _ngspice(text, instance, tmp_path):
     deck.write_text("\n".join(lines) + "\n")
     done = subprocess.run(["ngspice", "-b", str(deck)], check=False, capture_output=True, text=True, timeout=60)
     assert "rror" not in done.stdout + done.stderr, done.stdout + done.stderr
+    assert "unrecognized" not in done.stdout + done.stderr, done.stdout + done.stderr
     values = np.array([float(line.split("=")[1]) for line in done.stdout.splitlines() if line.startswith("x = ")])
     assert len(values) == len(FORWARD) + len(REVERSE) + len(CV), done.stdout
     n = len(FORWARD)
@@ -139,6 +140,7 @@ def test_card_header_gives_instance_syntax_and_units_as_comments():
     text = scalable.scalable_card(extraction.derive(_description(2.5e-9, 200e-6, contact=True)), 0)
     head, _, body = text.partition(f".model {NAME} D (")
     assert f"* instance: D1 a k {NAME} area=<bottom area, m^2> pj=<perimeter, m>" in head
+    assert "the sidewall's share P xj / (A + P xj)" in head
     assert "IS [A/m^2]" in head and "JSW [A/m]" in head and "RS [ohm*m^2]" in head
     assert all(line.startswith("* ") or not line.strip() for line in head.splitlines())
     assert not any(line.startswith(("*#", "*>")) for line in text.splitlines())
