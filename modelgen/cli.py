@@ -243,9 +243,13 @@ def _numeric(result, file, dialect, window):
               help="model: a .model card. subckt: a .subckt holding the diode and a behavioural source for the "
                    "depletion region's reverse generation current, which no target's diode equations carry "
                    "(ngspice dialect; instantiate it as X1 anode cathode NAME).")
+@click.option("--scalable", is_flag=True,
+              help="Write one scalable card (ngspice dialect): IS, ISR, IKF and CJO per m^2, JSW and CJSW per m, "
+                   "RS in ohm*m^2, for an instance D1 a k NAME area=<m^2> pj=<m>; the header says what scales "
+                   "and where the scaling stops holding. One description, closed-form physics.")
 @click.option("-q", "--quiet", is_flag=True, help="Do not repeat the warnings on stderr.")
 def card_command(device_files, output, fmt, dialect, section, physics, current_range, reverse_bias, cv_range,
-                 form, quiet):
+                 form, scalable, quiet):
     """Derive the model card of each device described in DEVICE.toml.
 
     One file gives one card; several files give one library of cards (for
@@ -272,6 +276,9 @@ def card_command(device_files, output, fmt, dialect, section, physics, current_r
 
     _check_output(output, device_files)
     target = targets.get(dialect)
+    if scalable:
+        _scalable_card(device_files, output, dialect, section, physics, form, fmt, quiet)
+        return
     if form == "subckt" and target.leakage_template is None:
         _fail(f"--form subckt: the {dialect} dialect has no behavioural source; use --dialect "
               + " or ".join(n for n, t in targets.TARGETS.items() if t.leakage_template))
@@ -352,6 +359,32 @@ def card_command(device_files, output, fmt, dialect, section, physics, current_r
             for m in r.findings_for(0):
                 if m.severity != "note":
                     click.echo(f"modelgen: {prefix}{m.severity}: {m.text}", err=True)
+    _emit(text, output, device_files)
+
+
+def _scalable_card(device_files, output, dialect, section, physics, form, fmt, quiet):
+    """card --scalable: one description's per-area and per-perimeter card (modelgen.scalable)."""
+    from . import scalable
+
+    if len(device_files) != 1:
+        _fail("--scalable takes one description (one scalable card)")
+    for flag, bad in (("--section", section is not None), ("--physics numeric", physics != "closed"),
+                      ("--form subckt", form != "model"), ("--format json", fmt != "card")):
+        if bad:
+            _fail(f"--scalable does not combine with {flag} yet")
+    f = device_files[0]
+    try:
+        r = extraction.derive(description.load(f))
+    except InputError as e:
+        _fail(str(e.located(file=f)))
+    try:
+        text = scalable.scalable_card(r, 0, dialect)
+    except ValueError as e:
+        _fail(f"--scalable: {e}")
+    if not quiet:
+        for m in r.findings_for(0):
+            if m.severity != "note":
+                click.echo(f"modelgen: {m.severity}: {m.text}", err=True)
     _emit(text, output, device_files)
 
 

@@ -463,11 +463,47 @@ def _run_all(pool, cards, plan, results, temperature_c, timeout, file, progress,
                     progress(done, total)
 
 
+#: The instance a scalable card (per-area and per-perimeter values, ``modelgen card --scalable``) is checked
+#: at: a 100 x 100 um diode, bottom area [m^2] and perimeter [m].
+SCALABLE_REFERENCE = (1e-8, 4e-4)
+#: How ngspice's instance ``area`` and ``pj`` scale a diode's parameters (measured in tests/test_scalable.py).
+INSTANCE_SCALING = {"IS": "area", "ISR": "area", "IKF": "area", "CJO": "area", "RS": "1/area",
+                    "JSW": "pj", "CJSW": "pj"}
+
+
+def at_instance(params, area, pj):
+    """A card's parameters as one instance ``area``, ``pj`` of it sees them (:data:`INSTANCE_SCALING`), PJ=1."""
+    factor = {"area": area, "1/area": 1.0 / area, "pj": pj}
+    out = {k: v * factor[INSTANCE_SCALING[k]] if k in INSTANCE_SCALING else v for k, v in params.items()}
+    if "JSW" in out or "CJSW" in out:
+        out["PJ"] = 1.0
+    return out
+
+
+def _scalable_lines(text):
+    """Line numbers of the headers of scalable cards (``..: scalable diode model card, modelgen ...``)."""
+    return [n for n, line in enumerate(reader.split_lines(text), start=1)
+            if line.lstrip().startswith("*") and ": scalable diode model card, modelgen " in line]
+
+
 def diode_cards(text, file=None):
-    """The diode cards of ``text``, validated (:func:`validate`); InputError when there is none."""
+    """The diode cards of ``text``, validated (:func:`validate`); InputError when there is none.
+
+    A card under a scalable card's header is taken as the instance :data:`SCALABLE_REFERENCE` sees it
+    (:func:`at_instance`): what runs in the simulator and the evaluator is that 100 x 100 um diode.
+    """
+    from dataclasses import replace
+
     cards = [c for c in reader.read_cards(text, file=file) if c.type == "D"]
     if not cards:
         raise InputError("no diode (.model NAME D) card found", file=file)
+    scalable = _scalable_lines(text)
+    if scalable:
+        headers = [n for n, _ in dialect_headers(text)]
+        for k, c in enumerate(cards):
+            j = bisect.bisect_left(headers, c.line) - 1
+            if j >= 0 and headers[j] in scalable:
+                cards[k] = replace(c, params=at_instance(c.params, *SCALABLE_REFERENCE))
     for c in cards:
         validate(c, file)
     return cards
