@@ -202,3 +202,13 @@ def test_statistics_hold_parameters_and_figures():
     # doping gives about 2.5 % in C at a fixed bias (VJ moves it a little)
     c = stats["figures"]["C@-1V"]
     assert c["std"] / c["mean"] == pytest.approx(0.025, rel=0.15)
+
+
+def test_capacitance_asked_at_or_beyond_the_junction_potential_is_refused():
+    # the depletion approximation's C ~ (VJ - V)^-M has no value at or above VJ (Sze & Ng 2007, ch. 2)
+    device, tol = device_and({"n.doping": {"sigma": "5 %", "distribution": "lognormal"}})
+    with pytest.raises(InputError) as e:
+        spread.run(device, tol, 10, seed=1, figures=("C@2V",))
+    assert "junction potential" in str(e.value) and "\n" not in str(e.value)
+    with pytest.raises(ValueError, match="kind"):
+        spread.sample(device, tol, 10, seed=1, kind="wafer")
