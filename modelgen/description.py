@@ -173,6 +173,8 @@ FIT_KEYS = {
 KEYS.update(FIT_KEYS)
 
 _TABLES = {"material", "card", "p", "n", "fit"}
+#: The optional [spread] table: tolerances, read by :mod:`modelgen.spread`, not a part of the nominal device.
+SPREAD_TABLE = "spread"
 _REQUIRED = ("name", "area")
 #: Pairs of keys of which exactly one (first pair) or at most one (second) is given.
 _EXACTLY_ONE = (("doping", "resistivity"), ("thickness", "neutral_width"))
@@ -210,6 +212,8 @@ def _flatten(table, file, errors=None):
 
     flat = {}
     for k, v in table.items():
+        if k == SPREAD_TABLE and isinstance(v, dict):
+            continue
         if isinstance(v, dict):
             if k not in _TABLES:
                 problem(f"unknown table [{shown(k)}]; known tables: {', '.join(sorted(_TABLES))}", k)
