@@ -417,8 +417,7 @@ def _leakage(device, sides, env, el, cur):
     """
     from .physics import generation
 
-    given = getattr(device, "fit_reverse_bias", None)
-    vr = np.full(len(device), LEAKAGE_BIAS) if given is None else np.where(np.isfinite(given), given, LEAKAGE_BIAS)
+    vr = np.where(np.isfinite(device.fit_reverse_bias), device.fit_reverse_bias, LEAKAGE_BIAS)
     with np.errstate(all="ignore"):
         j = generation.generation_current_density(vr, el["vj"], sides["p"]["doping"], sides["n"]["doping"],
                                                   np.where(el["linear"], el["grading"], 1.0), el["linear"],

@@ -261,18 +261,6 @@ def closed_form(result, params, reverse_bias, simulator="ngspice"):
                params["VJ"], t)
 
 
-#: The fit window's reverse bias when a description gives none [V].
-DEFAULT_REVERSE_BIAS = -5.0
-
-
-def window_reverse_bias(result, i):
-    """The reverse bias of device ``i``'s fit window [V]: its ``[fit] reverse_bias``, else :data:`DEFAULT_REVERSE_BIAS`."""
-    given = getattr(result.device, "fit_reverse_bias", None)
-    if given is not None and np.isfinite(given[i]):
-        return float(given[i])
-    return DEFAULT_REVERSE_BIAS
-
-
 def header_lines(sources, against="the closed forms"):
     """File-header lines that say what the ``.subckt`` form adds, how well, and how to use it."""
     worst = max(float(np.max(g.worst_error)) for g in sources)

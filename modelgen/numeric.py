@@ -52,7 +52,7 @@ from . import leakage, structures, targets
 from .cards.render import card_values
 from .constants import thermal_voltage
 from .errors import InputError
-from .extraction import Message
+from .extraction import LEAKAGE_BIAS, Message
 from .physics import driftdiffusion
 from .spice import evaluator
 
@@ -122,7 +122,7 @@ class Window:
     current_low: float = 0.0
     current_high: float = 0.1
     voltage_cap: float = 1.5
-    reverse_bias: float = -5.0
+    reverse_bias: float = LEAKAGE_BIAS
     capacitance_low: float = -5.0
     capacitance_high: float = 0.3
 

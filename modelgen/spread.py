@@ -414,8 +414,8 @@ def parse_figure(text):
 def forward_voltage(params, temperature, current, simulator="ngspice", halvings=42):
     """Terminal voltage at which each card passes ``current``, vectorised over cards [V].
 
-    The card's own forward equations as ngspice 39 evaluates them (the
-    module :mod:`modelgen.spice.evaluator` checks them against ngspice):
+    The card's own forward equations as ngspice 39 evaluates them
+    (:func:`modelgen.spice.evaluator.forward_current`, checked against ngspice):
     I = IS (exp(Vd/(N Vt)) - 1) + ISR (exp(Vd/(NR Vt)) - 1) ((1 - Vd/VJ)^2
     + 0.005)^(M/2), then the high-injection knee I / (1 + sqrt(I/IKF)) where
     IKF > 0; the junction voltage Vd is found by bisection on [0, 10 V]
@@ -441,21 +441,9 @@ def forward_voltage(params, temperature, current, simulator="ngspice", halvings=
     sim = evaluator.simulator_of(simulator)
     vt = sim.boltzmann * np.asarray(temperature, float) / sim.charge
     p = {k: np.asarray(params[k], float) for k in ("IS", "N", "ISR", "NR", "VJ", "M", "IKF", "RS")}
-    isr = np.nan_to_num(p["ISR"])
-    ikf = np.nan_to_num(p["IKF"])
-
-    inv_n, inv_nr, inv_vj, half_m = 1 / (p["N"] * vt), 1 / (p["NR"] * vt), 1 / p["VJ"], p["M"] / 2
-    knee = ikf > 0
-    inv_ikf = np.where(knee, 1 / np.where(knee, ikf, 1.0), 0.0)  # 0: no knee
 
     def junction(vd):
-        i = p["IS"] * np.expm1(vd * inv_n)
-        if sim.recombination:
-            u = 1 - vd * inv_vj
-            i = i + isr * np.expm1(vd * inv_nr) * (u * u + 0.005) ** half_m
-        if sim.knee:
-            i = i / (1 + np.sqrt(np.maximum(i, 0.0) * inv_ikf))
-        return i
+        return evaluator.forward_current(p, vd, vt, sim)
 
     lo = np.zeros(len(vt))
     hi = np.full(len(vt), 10.0)

@@ -22,13 +22,13 @@ levels off, a difference of the two models this module does not settle.
 
 import copy
 import tomllib
-from dataclasses import dataclass, field
 
 import numpy as np
 import pytest
 from scipy import constants as sc
 
 from modelgen import calibration, description, extraction, numeric
+from modelgen.measurements import Curve
 from modelgen.errors import InputError
 
 TRUTH_TOML = """\
@@ -50,23 +50,6 @@ lifetime = "2 us"
 """
 TRUTH = {"n.doping": 2e22, "n.lifetime": 2e-6, "recombination_lifetime": 200e-9, "contact_resistance": 20.0}
 COMPLIANCE = 0.02  # [A]
-
-
-@dataclass
-class Curve:
-    """Stand-in for modelgen.measurements.Curve (the same fields)."""
-
-    kind: str
-    file: str
-    v: np.ndarray
-    y: np.ndarray
-    line: np.ndarray
-    temperature: np.ndarray
-    area: np.ndarray
-    perimeter: np.ndarray
-    group: np.ndarray
-    use: np.ndarray
-    notes: list = field(default_factory=list)
 
 
 def curve(kind, v, y, use=None):

@@ -255,16 +255,9 @@ def _junction(p, s, g, vd, own_sidewall_n):
     i_fwd = csat * (ev - 1)
     g_fwd = csat * ev / vte
     if s.recombination and p["ISR"] > 0:
-        vtr = p["NR"] * vt
-        er = np.exp(np.minimum(vd / vtr, 700.0))
-        u = 1 - vd / p["VJ"]
-        t1 = u * u + 0.005
-        fac = t1 ** (p["M"] / 2)
-        dfac = -p["M"] * u * t1 ** (p["M"] / 2 - 1) / p["VJ"]
-        isr = p["ISR"] * p["AREA"]
-        i_rec = isr * (er - 1)
-        g_fwd = g_fwd + isr * er / vtr * fac + i_rec * dfac
-        i_fwd = i_fwd + i_rec * fac
+        i_rec, g_rec = _recombination(p["ISR"] * p["AREA"], p["NR"] * vt, p["VJ"], p["M"], vd)
+        i_fwd = i_fwd + i_rec
+        g_fwd = g_fwd + g_rec
     if s.reverse_tail:
         forward = vd >= -3 * vte
         i_rev, g_rev = _reverse_tail(csat, vte, vd)
@@ -280,11 +273,49 @@ def _junction(p, s, g, vd, own_sidewall_n):
         forward = np.ones(vd.shape, bool)
         i, gb = i_fwd, g_fwd
     if s.knee and p["IKF"] > 0:
-        ikf = p["IKF"] * p["AREA"]
-        kneed = forward & (i > 1e-18)
-        with np.errstate(invalid="ignore"):
-            i = np.where(kneed, i / (1 + np.sqrt(np.where(kneed, i, 0.0) / ikf)), i)
+        i = _ikf_knee(i, p["IKF"] * p["AREA"], forward & (i > 1e-18))
     return i + g * vd, gb
+
+
+def _recombination(isr, vtr, vj, m, vd):
+    """ngspice's recombination term ISR (exp(Vd/(NR Vt)) - 1) ((1 - Vd/VJ)^2 + 0.005)^(M/2) and its
+    conductance [A], [S]; ``vtr`` = NR Vt. Arrays broadcast together."""
+    er = np.exp(np.minimum(vd / vtr, 700.0))
+    u = 1 - vd / vj
+    t1 = u * u + 0.005
+    fac = t1 ** (m / 2)
+    dfac = -m * u * t1 ** (m / 2 - 1) / vj
+    i_rec = isr * (er - 1)
+    return i_rec * fac, isr * er / vtr * fac + i_rec * dfac
+
+
+def _ikf_knee(i, ikf, kneed):
+    """The high-injection knee I / (1 + sqrt(I/IKF)) where ``kneed``, I elsewhere."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(kneed, i / (1 + np.sqrt(np.where(kneed, i, 0.0) / ikf)), i)
+
+
+def forward_current(params, vd, thermal_voltage, simulator="ngspice"):
+    """Forward junction current of many cards at once, vectorised over cards [A].
+
+    The forward branch of :func:`junction_current` (IS, the ISR term where
+    the simulator has it and ISR > 0, the IKF knee where it has it and
+    IKF > 0) for cards given as columns of one length with ``vd`` and
+    ``thermal_voltage`` (the card's kT/q with the simulator's constants);
+    without GMIN, sidewall terms (pass totals) or temperature rescaling (the
+    cards at their TNOM). Valid for vd >= -3 N Vt.
+    """
+    s = simulator_of(simulator)
+    p = {k: np.asarray(params[k], float) for k in ("IS", "N", "ISR", "NR", "VJ", "M", "IKF")}
+    vd = np.asarray(vd, float)
+    i = p["IS"] * (np.exp(np.minimum(vd / (p["N"] * thermal_voltage), 700.0)) - 1)
+    if s.recombination:
+        isr = np.nan_to_num(p["ISR"])
+        i = i + np.where(isr > 0, _recombination(isr, p["NR"] * thermal_voltage, p["VJ"], p["M"], vd)[0], 0.0)
+    if s.knee:
+        ikf = np.nan_to_num(p["IKF"])
+        i = _ikf_knee(i, np.where(ikf > 0, ikf, 1.0), (ikf > 0) & (i > 1e-18))
+    return i
 
 
 def dc_current(card, v, simulator="ngspice", gmin=None, iterations=200, temperature_c=None):
