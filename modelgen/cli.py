@@ -428,7 +428,7 @@ def spread_command(device_file, samples, seed, figures, kind, fmt, output):
         chosen = tuple(figures) or ("VF@1mA", "IR@-5V", "C@-1V", "BV", "TT")
         for f in chosen:
             spread.parse_figure(f)
-        result = spread.run(device, tolerances, samples, seed, chosen, kind)
+        result = spread.run(device, tolerances, samples, seed, chosen, kind, fork=True)
     except InputError as e:
         _fail(str(e.located(file=device_file)) if not e.file else str(e))
     stats = result.statistics()

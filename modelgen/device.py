@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field, fields
 from operator import itemgetter
+from itertools import chain
 
 import numpy as np
 
@@ -175,7 +176,7 @@ def concatenate(devices):
             if isinstance(vals[0], Side):
                 kw[f.name] = cat(vals, Side)
             elif isinstance(vals[0], tuple):
-                kw[f.name] = tuple(x for v in vals for x in v)
+                kw[f.name] = tuple(chain.from_iterable(vals))
             else:
                 kw[f.name] = np.concatenate(vals)
         return cls(**kw)

@@ -45,8 +45,21 @@ A normal or uniform draw that leaves a key's allowed range (a doping at or
 below zero, a negative resistance) or its accepted range is an error naming
 the key and the sample, never clipped: clipping would bend the distribution
 the statistics describe. Give such a key a lognormal distribution or a
-smaller sigma. Correlations between keys are not modelled (each key draws
-independently).
+smaller sigma.
+
+Correlations between keys (optional): ``correlations`` is a list of
+``[KEY1, KEY2, rho]`` items, -1 < rho < 1, the correlation of the two keys'
+standard normal draws (of ln(value) for a lognormal key) for each sharing
+both keys have (global with global, local with local)::
+
+    correlations = [["n.doping", "n.lifetime", -0.6]]
+
+The draws of each sharing are made independent, then mixed by the Cholesky
+factor of the correlation matrix, which must be positive definite (a set
+of correlations no joint normal distribution has is refused). Uniform
+entries take no correlation (mixing would change their distribution).
+Keys without correlations draw independently, and the draws of a table
+without ``correlations`` are unchanged by the feature.
 
 Sampling and figures
 --------------------
@@ -65,7 +78,9 @@ asks for (:func:`parse_figure`: ``VF@1mA``, ``IR@-5V``, ``C@-1V``, ``BV``,
 from __future__ import annotations
 
 import math
+import os
 import re
+import tempfile
 from dataclasses import dataclass, fields, replace
 
 import numpy as np
@@ -82,6 +97,10 @@ SHARINGS = ("global", "local")
 KINDS_OF_SAMPLE = ("global", "local", "both")
 #: Fields of one entry of [spread].
 FIELDS = ("sigma", "distribution", "shared", "area_scaling")
+#: Rows derived at a time by :func:`run` (the answer does not depend on it: rows are independent).
+CHUNK = 16384
+#: Samples from which :func:`run` may derive half of them in a second process (when asked to fork).
+FORK_MIN = 100_000
 #: Percentiles :meth:`Spread.statistics` gives.
 PERCENTILES = (1, 5, 50, 95, 99)
 
@@ -134,6 +153,17 @@ class Tolerances:
     entries: tuple
     reference_area: float
     file: str | None = None
+    correlations: tuple = ()   # (key1, key2, rho) with key1 < key2, as given
+
+    def correlation_matrix(self, shared):
+        """(entries of sharing ``shared`` that draw normals, their correlation matrix)."""
+        chosen = [t for t in self.entries if t.shared == shared and t.distribution != "uniform"]
+        index = {t.key: i for i, t in enumerate(chosen)}
+        rho = np.eye(len(chosen))
+        for a, b, r in self.correlations:
+            if a in index and b in index:
+                rho[index[a], index[b]] = rho[index[b], index[a]] = r
+        return chosen, rho
 
 
 def _entries(table, prefix=""):
@@ -172,6 +202,8 @@ def parse(table, device, *, file=None):
         def bad(message, where=where):
             return InputError(message, file=file, key=where)
 
+        if key == "correlations":
+            continue
         if key == "reference_area":
             reference = parse_quantity(raw, "area", key=where, file=file)
             if not reference > 0:
@@ -216,7 +248,52 @@ def parse(table, device, *, file=None):
                 raise bad("a lognormal spread needs a positive value")
             found.append(Tolerance(key, sigma, distribution, shared, scaling))
     found.sort(key=lambda t: (t.key, SHARINGS.index(t.shared)))
-    return Tolerances(tuple(found), reference, file)
+    tolerances = Tolerances(tuple(found), reference, file)
+    if "correlations" in table:
+        tolerances = replace(tolerances, correlations=_correlations(table["correlations"], tolerances, file))
+    return tolerances
+
+
+def _correlations(raw, tolerances, file):
+    """The ``correlations`` list of [spread] -> ((key1, key2, rho), ...), checked (see the module docstring)."""
+    def bad(message, item=None):
+        where = "spread.correlations" + (f"[{item}]" if item is not None else "")
+        return InputError(message, file=file, key=where)
+
+    if not isinstance(raw, list):
+        raise bad(f"expected a list of [KEY1, KEY2, rho] items, got {type_name(raw)}")
+    out, seen = [], set()
+    by_key = {}
+    for t in tolerances.entries:
+        by_key.setdefault(t.key, []).append(t)
+    for i, item in enumerate(raw):
+        if not (isinstance(item, list) and len(item) == 3 and all(isinstance(k, str) for k in item[:2])
+                and isinstance(item[2], (int, float)) and not isinstance(item[2], bool)):
+            raise bad(f"expected [KEY1, KEY2, rho] (two quoted keys and a number), got {shown(item)}", i)
+        a, b, rho = item[0].strip(), item[1].strip(), float(item[2])
+        for k in (a, b):
+            if k not in by_key:
+                raise bad(f"{shown(k)} has no entry in [spread]: correlate keys that spread", i)
+            if any(t.distribution == "uniform" for t in by_key[k]):
+                raise bad(f"{k} is uniform: correlations take normal and lognormal entries only", i)
+        if a == b:
+            raise bad(f"a key is not correlated with itself ({a})", i)
+        if not -1.0 < rho < 1.0 or not math.isfinite(rho):
+            raise bad(f"rho must lie strictly between -1 and 1, got {rho!r}", i)
+        pair = tuple(sorted((a, b)))
+        if pair in seen:
+            raise bad(f"{pair[0]} and {pair[1]} are correlated twice", i)
+        if not {t.shared for t in by_key[a]} & {t.shared for t in by_key[b]}:
+            raise bad(f"{a} and {b} share no sharing (global or local): nothing to correlate", i)
+        seen.add(pair)
+        out.append((*pair, rho))
+    result = replace(tolerances, correlations=tuple(out))
+    for shared in SHARINGS:
+        _, rho = result.correlation_matrix(shared)
+        if len(rho) and np.linalg.eigvalsh(rho).min() <= 1e-9:
+            raise bad(f"the {shared} correlations are not those of any joint normal distribution (their matrix "
+                      "is not positive definite): make them smaller or consistent")
+    return tuple(out)
 
 
 def _unit(key):
@@ -324,9 +401,17 @@ def sample(device, spread, n, seed, kind="both"):
     area = float(device.area[0])
     rows = _repeat(device, n)
     factor, shift = {}, {}
+    draws = {}
     for t in spread.entries:  # every entry draws, used or not, so that each key's draws depend on the seed alone
         rng = streams[t.shared]
-        u = rng.standard_normal(n) if t.distribution != "uniform" else rng.uniform(-1.0, 1.0, n)
+        draws[t] = rng.standard_normal(n) if t.distribution != "uniform" else rng.uniform(-1.0, 1.0, n)
+    for shared in SHARINGS if spread.correlations else ():
+        chosen, rho = spread.correlation_matrix(shared)
+        if len(chosen) > 1 and not np.array_equal(rho, np.eye(len(chosen))):
+            mixed = np.linalg.cholesky(rho) @ np.array([draws[t] for t in chosen])
+            draws.update(zip(chosen, mixed))
+    for t in spread.entries:
+        u = draws[t]
         if kind not in ("both", t.shared):
             continue
         nominal = float(_get(device, t.key)[0])
@@ -411,18 +496,25 @@ def parse_figure(text):
     return Figure(name, bias, f"{name}@{bias_text.strip()}")
 
 
-def forward_voltage(params, temperature, current, simulator="ngspice", halvings=42):
+def forward_voltage(params, temperature, current, simulator="ngspice", halvings=12, steps=6):
     """Terminal voltage at which each card passes ``current``, vectorised over cards [V].
 
     The card's own forward equations as ngspice 39 evaluates them
     (:func:`modelgen.spice.evaluator.forward_current`, checked against ngspice):
     I = IS (exp(Vd/(N Vt)) - 1) + ISR (exp(Vd/(NR Vt)) - 1) ((1 - Vd/VJ)^2
     + 0.005)^(M/2), then the high-injection knee I / (1 + sqrt(I/IKF)) where
-    IKF > 0; the junction voltage Vd is found by bisection on [0, 10 V]
-    (the current rises monotonically; 42 halvings leave 2e-12 V), and
-    V = Vd + RS I. GMIN is left out
-    (1e-12 S: a picoampere per volt). Valid for the forward currents the
-    card is made for, below the knee or a little beyond.
+    IKF > 0, and V = Vd + RS I. GMIN is left out (1e-12 S: a picoampere per
+    volt). Valid for the forward currents the card is made for, below the
+    knee or a little beyond.
+
+    The junction voltage Vd: the current rises monotonically in Vd, so
+    ``halvings`` bisections of [0, 10 V] bracket it (12 leave 2.4 mV), then
+    ``steps`` of the Illinois false-position method on ln I - ln I_target,
+    kept inside the bracket (Dowell & Jarratt, BIT 11, 168 (1971)), finish
+    it: ln I is nearly linear in Vd, so each step gains several digits; 4
+    reach the last bit on the demo cards and 6 are taken (tests: the current
+    at the returned voltage, with RS on its own path in
+    :func:`modelgen.spice.evaluator.dc_current`, against the target).
 
     Parameters
     ----------
@@ -441,21 +533,35 @@ def forward_voltage(params, temperature, current, simulator="ngspice", halvings=
     sim = evaluator.simulator_of(simulator)
     vt = sim.boltzmann * np.asarray(temperature, float) / sim.charge
     p = {k: np.asarray(params[k], float) for k in ("IS", "N", "ISR", "NR", "VJ", "M", "IKF", "RS")}
+    target = math.log(current)
 
-    def junction(vd):
-        return evaluator.forward_current(p, vd, vt, sim)
+    def gap(vd):  # ln I(vd) - ln I_target; -inf where no current flows
+        return np.log(np.maximum(evaluator.forward_current(p, vd, vt, sim), 1e-300)) - target
 
     lo = np.zeros(len(vt))
     hi = np.full(len(vt), 10.0)
-    with np.errstate(over="ignore", invalid="ignore"):
-        reach = junction(hi) >= current
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        reach = gap(hi) >= 0
         for _ in range(halvings):
             mid = 0.5 * (lo + hi)
-            over = junction(mid) >= current
+            over = gap(mid) >= 0
             hi = np.where(over, mid, hi)
             lo = np.where(over, lo, mid)
-    vd = 0.5 * (lo + hi)
-    return np.where(reach, vd + p["RS"] * current, np.nan)
+        g_lo, g_hi = gap(lo), gap(hi)
+        x = 0.5 * (lo + hi)
+        side = np.zeros(len(vt), int)  # which end moved last (Illinois: halve the other end's gap)
+        for _ in range(steps):
+            denom = g_hi - g_lo
+            x = np.where(np.isfinite(denom) & (denom > 0), hi - g_hi * (hi - lo) / denom, 0.5 * (lo + hi))
+            x = np.clip(x, lo, hi)
+            g = gap(x)
+            up = g >= 0
+            g_hi = np.where(up, g, np.where(side == -1, 0.5 * g_hi, g_hi))
+            g_lo = np.where(~up, g, np.where(side == 1, 0.5 * g_lo, g_lo))
+            hi = np.where(up, x, hi)
+            lo = np.where(up, lo, x)
+            side = np.where(up, 1, -1)
+    return np.where(reach, x + p["RS"] * current, np.nan)
 
 
 def figure_values(result, figure):
@@ -490,18 +596,39 @@ def summary(values):
     return out
 
 
-@dataclass
 class Spread:
-    """The outcome of :func:`run`: the samples' Result, the figures asked for, and how they were drawn."""
+    """The outcome of :func:`run`: the samples, their card parameters, the figures asked for, how drawn.
 
-    result: extraction.Result
-    figures: dict          # figure text -> array over samples (SI)
-    units: dict            # figure text -> unit
-    seed: int
-    kind: str
+    ``rows`` is the sampled Device, ``params`` every card parameter over the
+    samples (name -> array), ``figures`` each figure asked for (text ->
+    array, SI). The samples' whole :class:`modelgen.extraction.Result`
+    (about 1 kB a sample) is not kept: :meth:`derive` gives it for the rows
+    wanted, ``result`` for all of them, by the same physics and so with the
+    same numbers (rows are derived independently of one another).
+    """
+
+    def __init__(self, rows, params, figures, units, seed, kind):
+        self.rows = rows
+        self.params = params
+        self.figures = figures
+        self.units = units
+        self.seed = seed
+        self.kind = kind
+        self._result = None
+
+    def derive(self, rows):
+        """The Result of the samples ``rows`` (indices or a mask)."""
+        return extraction.derive(self.rows.take(np.asarray(rows)))
+
+    @property
+    def result(self):
+        """The Result of every sample (derived again on first use)."""
+        if self._result is None:
+            self._result = extraction.derive(self.rows)
+        return self._result
 
     def __len__(self):
-        return len(self.result)
+        return len(self.rows)
 
     def statistics(self):
         """``{"parameters": {NAME: summary}, "figures": {TEXT: summary}}`` (see :func:`summary`).
@@ -509,21 +636,80 @@ class Spread:
         Card parameters in :data:`modelgen.extraction.PARAMETERS` order, figures in the order asked.
         """
         return {"samples": len(self), "seed": self.seed, "kind": self.kind,
-                "parameters": {k: dict(summary(self.result.params[k]), unit=extraction.UNITS[k])
-                               for k in extraction.PARAMETERS if k in self.result.params},
+                "parameters": {k: dict(summary(self.params[k]), unit=extraction.UNITS[k])
+                               for k in extraction.PARAMETERS if k in self.params},
                 "figures": {k: dict(summary(v), unit=self.units[k]) for k, v in self.figures.items()}}
 
 
-def run(device, spread, n, seed, figures=("VF@1mA", "IR@-5V", "C@-1V", "BV", "TT"), kind="both"):
-    """Sample ``n`` rows (:func:`sample`), derive them in one call and evaluate ``figures``.
+def run(device, spread, n, seed, figures=("VF@1mA", "IR@-5V", "C@-1V", "BV", "TT"), kind="both", *, fork=False):
+    """Sample ``n`` rows (:func:`sample`), derive them (in chunks of :data:`CHUNK`) and evaluate ``figures``.
 
     ``figures`` are texts (:func:`parse_figure`) or :class:`Figure`. Raises
     InputError as :func:`sample`, :func:`parse_figure` and
     :func:`modelgen.extraction.derive` do (the first sample the physics
     cannot describe, naming it).
+
+    ``fork``: on POSIX, derive the second half of the chunks in a forked
+    second process (from :data:`FORK_MIN` samples; the command line asks for
+    it, a library call does not unless told). The numbers are the same
+    either way: rows are derived independently. A second process that fails
+    is not trusted; its half is derived again here, where its error shows.
     """
     asked = [f if isinstance(f, Figure) else parse_figure(f) for f in figures]
     rows = sample(device, spread, n, seed, kind)
-    result = extraction.derive(rows)
-    values = {f.text: figure_values(result, f) for f in asked}
-    return Spread(result, values, {f.text: f.unit for f in asked}, int(seed), kind)
+    starts = list(range(0, len(rows), CHUNK))
+    half = len(starts) // 2 if fork and len(rows) >= FORK_MIN else len(starts)
+    columns = None
+    if half < len(starts):
+        from .output import Beside
+
+        handle, path = tempfile.mkstemp(prefix="modelgen-spread-", suffix=".npz")
+        os.close(handle)
+
+        def task():
+            np.savez(path, **_flat(_derive_chunks(rows, starts[half:], asked)))
+
+        beside = Beside(task, fork=True).start()
+        try:
+            columns = [_derive_chunks(rows, starts[:half], asked)]
+            beside.join()
+            with np.load(path) as saved:
+                columns.append(_unflat({k: saved[k] for k in saved.files}))
+        finally:
+            beside.cancel()
+            os.unlink(path)
+    else:
+        columns = [_derive_chunks(rows, starts, asked)]
+    params = {k: np.concatenate([c[0][k] for c in columns]) for k in columns[0][0]}
+    values = {f.text: np.concatenate([c[1][f.text] for c in columns]) for f in asked}
+    return Spread(rows, params, values, {f.text: f.unit for f in asked}, int(seed), kind)
+
+
+def _derive_chunks(rows, starts, asked):
+    """(params, figures) of the chunks of ``rows`` starting at ``starts``, each name -> array."""
+    params, values = [], {f.text: [] for f in asked}
+    for start in starts:  # rows are independent: chunks keep the arrays small
+        part = extraction.derive(rows.take(slice(start, start + CHUNK)))
+        params.append(part.params)
+        for f in asked:
+            values[f.text].append(figure_values(part, f))
+    if not params:
+        return {}, {k: np.empty(0) for k in values}
+    return ({k: np.concatenate([p[k] for p in params]) for k in params[0]},
+            {k: np.concatenate(v) for k, v in values.items()})
+
+
+def _flat(columns):
+    """(params, figures) -> one name -> array mapping for ``numpy.savez`` (figure texts are not names)."""
+    params, figures = columns
+    out = {f"p_{k}": v for k, v in params.items()}
+    out.update({f"f{i}": v for i, v in enumerate(figures.values())})
+    out["figure_names"] = np.array(list(figures), dtype=str)
+    return out
+
+
+def _unflat(saved):
+    """The inverse of :func:`_flat`."""
+    params = {k[2:]: v for k, v in saved.items() if k.startswith("p_")}
+    names = [str(x) for x in saved["figure_names"]]
+    return params, {name: saved[f"f{i}"] for i, name in enumerate(names)}

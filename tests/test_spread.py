@@ -14,10 +14,12 @@ from modelgen.errors import InputError
 from modelgen.spice import evaluator
 
 BASE = ROOT / "examples" / "switching_diode.toml"
+#: The example without its own [spread] table (the tests give theirs).
+PLAIN = BASE.read_text().split("\n[spread]")[0]
 
 
 def base_table():
-    return tomllib.loads(BASE.read_text())
+    return tomllib.loads(PLAIN)
 
 
 def device_and(tolerances, **changes):
@@ -117,15 +119,16 @@ def test_description_with_spread_loads_as_without(tmp_path):
     # a [spread] table is not a part of the nominal device: the card is the one without it
     plain = description.load(BASE)
     path = tmp_path / "with_spread.toml"
-    path.write_text(BASE.read_text() + '\n[spread]\n"n.doping" = { sigma = "5 %", distribution = "lognormal" }\n'
+    path.write_text(PLAIN + '\n[spread]\n"n.doping" = { sigma = "5 %", distribution = "lognormal" }\n'
                     'p.lifetime = { sigma = "0.2 ns", shared = "local" }\n')
     device, tol, _raw = spread.load(path)
     a, b = extraction.derive(plain), extraction.derive(device)
     assert all(a.params[k][0] == b.params[k][0] for k in extraction.PARAMETERS)
     assert [t.key for t in tol.entries] == ["n.doping", "p.lifetime"]
     assert tol.entries[1].sigma == pytest.approx(0.2e-9) and tol.reference_area == pytest.approx(2.5e-9)
+    (tmp_path / "plain.toml").write_text(PLAIN)
     with pytest.raises(InputError, match="no \\[spread\\] table"):
-        spread.load(BASE)
+        spread.load(tmp_path / "plain.toml")
 
 
 @pytest.mark.parametrize("body, key, words", [
@@ -146,7 +149,7 @@ def test_description_with_spread_loads_as_without(tmp_path):
 def test_bad_spread_gives_one_line_naming_file_and_key(tmp_path, body, key, words):
     # the rule of the person we build for: bad input gets one line naming the file and the key
     path = tmp_path / "bad.toml"
-    path.write_text(BASE.read_text() + "\n[spread]\n" + body + "\n")
+    path.write_text(PLAIN + "\n[spread]\n" + body + "\n")
     with pytest.raises(InputError) as e:
         spread.load(path)
     text = str(e.value)
@@ -212,3 +215,79 @@ def test_capacitance_asked_at_or_beyond_the_junction_potential_is_refused():
     assert "junction potential" in str(e.value) and "\n" not in str(e.value)
     with pytest.raises(ValueError, match="kind"):
         spread.sample(device, tol, 10, seed=1, kind="wafer")
+
+
+def test_correlated_draws_follow_the_stated_correlation_and_keep_their_spread():
+    # the Cholesky factor L of the correlation matrix turns independent standard normals w into z = L w
+    # with covariance L L^T (Golub & Van Loan, Matrix Computations, 4th ed., 2013, sec. 4.2); the sample
+    # correlation of n pairs has a standard error of (1 - rho^2) / sqrt(n) (Fisher 1915): 4 allowed
+    rho = -0.6
+    device, tol = device_and({"n.doping": {"sigma": "5 %", "distribution": "lognormal"},
+                              "n.lifetime": {"sigma": "20 %", "distribution": "lognormal"},
+                              "correlations": [["n.lifetime", "n.doping", rho]]})
+    n = 20000
+    rows = spread.sample(device, tol, n, seed=5)
+    ln_nd, ln_tau = np.log(rows.n.doping), np.log(rows.n.lifetime)
+    assert np.corrcoef(ln_nd, ln_tau)[0, 1] == pytest.approx(rho, abs=4 * (1 - rho ** 2) / np.sqrt(n))
+    se = 4 / np.sqrt(2 * (n - 1))  # the sample standard deviation's relative standard error, 4 of them
+    assert np.std(ln_nd, ddof=1) == pytest.approx(0.05, rel=se)
+    assert np.std(ln_tau, ddof=1) == pytest.approx(0.20, rel=se)
+
+
+def test_correlation_enters_the_propagated_variance():
+    # first-order propagation with correlated inputs (JCGM 100:2008, the GUM, eq. 13):
+    # var(y) = a^2 s1^2 + b^2 s2^2 + 2 a b rho s1 s2, with a, b the sensitivities of y = ln IS to ln N_D
+    # and ln tau (central differences of the physics at +/- 1 %)
+    entries = {"n.doping": {"sigma": "4 %", "distribution": "lognormal"},
+               "n.lifetime": {"sigma": "15 %", "distribution": "lognormal"}}
+    device, _ = device_and({})
+    grid = [(1, 1), (1.01, 1), (1 / 1.01, 1), (1, 1.01), (1, 1 / 1.01)]
+    rows = spread._repeat(device, len(grid))
+    rows = spread._set(rows, "n.doping", device.n.doping[0] * np.array([g[0] for g in grid]))
+    rows = spread._set(rows, "n.lifetime", device.n.lifetime[0] * np.array([g[1] for g in grid]))
+    ln_is = np.log(extraction.derive(rows).params["IS"])
+    a = (ln_is[1] - ln_is[2]) / (2 * np.log(1.01))
+    b = (ln_is[3] - ln_is[4]) / (2 * np.log(1.01))
+    n = 20000
+    for rho in (-0.7, 0.0, 0.7):
+        _, tol = device_and(dict(entries, correlations=[["n.doping", "n.lifetime", rho]]))
+        s = spread.run(device, tol, n, seed=9, figures=())
+        predicted = np.sqrt(a * a * 0.04 ** 2 + b * b * 0.15 ** 2 + 2 * a * b * rho * 0.04 * 0.15)
+        # sampling (relative standard error 1/sqrt(2(n-1)), 0.5 %) and second-order terms: 3 % allowed
+        assert np.std(np.log(s.params["IS"]), ddof=1) == pytest.approx(predicted, rel=0.03)
+
+
+@pytest.mark.parametrize("correlations, words", [
+    ([["n.doping", "n.lifetime", 1.0]], "strictly between -1 and 1"),
+    ([["n.doping", "p.doping", 0.5]], "has no entry"),
+    ([["n.doping", "contact_resistance", 0.5]], "uniform"),
+    ([["n.doping", "n.lifetime", 0.9], ["n.doping", "n.thickness", 0.9], ["n.lifetime", "n.thickness", -0.9]],
+     "not positive definite"),
+    ("n.doping", "list of [KEY1, KEY2, rho]"),
+])
+def test_bad_correlations_are_one_line_naming_the_key(correlations, words):
+    # a correlation matrix must be positive definite to belong to a joint normal distribution (definition)
+    entries = {"n.doping": {"sigma": "4 %", "distribution": "lognormal"},
+               "n.lifetime": {"sigma": "15 %", "distribution": "lognormal"},
+               "n.thickness": {"sigma": "2 %"},
+               "contact_resistance": {"sigma": "0.1 ohm", "distribution": "uniform"},
+               "correlations": correlations}
+    with pytest.raises(InputError) as e:
+        device_and(entries)
+    text = str(e.value)
+    assert words in text and "spread.correlations" in text and "demo.toml" in text and "\n" not in text
+
+
+def test_a_second_process_and_chunks_give_the_same_numbers(monkeypatch):
+    # the contract that one device and a million take one code path: rows are derived independently, so
+    # how they are split (chunks, a forked second process) cannot change a number (common practice)
+    device, tol = device_and({"n.doping": {"sigma": "5 %", "distribution": "lognormal"},
+                              "contact_resistance": {"sigma": "0.1 ohm", "distribution": "uniform"}})
+    whole = spread.run(device, tol, 700, seed=4, figures=("VF@1mA", "IR@-5V"))
+    monkeypatch.setattr(spread, "CHUNK", 64)
+    monkeypatch.setattr(spread, "FORK_MIN", 100)
+    split = spread.run(device, tol, 700, seed=4, figures=("VF@1mA", "IR@-5V"), fork=True)
+    for k in whole.params:
+        np.testing.assert_array_equal(whole.params[k], split.params[k])
+    for k in whole.figures:
+        np.testing.assert_array_equal(whole.figures[k], split.figures[k])
