@@ -16,6 +16,7 @@ import os
 import sys
 
 import click
+from click.core import ParameterSource
 import numpy as np
 
 from . import __version__, cards, description, extraction, leakage, targets
@@ -245,8 +246,12 @@ def _numeric(result, file, dialect, window):
                    "(ngspice dialect; instantiate it as X1 anode cathode NAME).")
 @click.option("--scalable", is_flag=True,
               help="Write one scalable card (ngspice dialect): IS, ISR, IKF and CJO per m^2, JSW and CJSW per m, "
-                   "RS in ohm*m^2, for an instance D1 a k NAME area=<m^2> pj=<m>; the header says what scales "
-                   "and where the scaling stops holding. One description, closed-form physics.")
+                   "RS in ohm*m^2, for an instance D1 a k NAME area=<m^2> pj=<m> (ngspice unless --dialect is "
+                   "given); the header says what scales "
+                   "and where the scaling stops holding. With --form subckt: a subcircuit X1 a k NAME area=<m^2> "
+                   "pj=<m> whose diode has the junction area area + pj*xj, so the recombination current and "
+                   "the knee scale with the sidewall too (ngspice's ISR and IKF scale with area alone). One "
+                   "description, closed-form physics.")
 @click.option("-q", "--quiet", is_flag=True, help="Do not repeat the warnings on stderr.")
 def card_command(device_files, output, fmt, dialect, section, physics, current_range, reverse_bias, cv_range,
                  form, scalable, quiet):
@@ -271,12 +276,16 @@ def card_command(device_files, output, fmt, dialect, section, physics, current_r
       modelgen card examples/*.toml --dialect ngspice --section typical -o demo.lib
       modelgen card examples/graded_varactor.toml --dialect ngspice --physics numeric
       modelgen card examples/photodiode.toml --dialect ngspice --form subckt
+      modelgen card examples/switching_diode.toml --scalable --form subckt -o scalable.lib
     """
     from . import structures
 
     _check_output(output, device_files)
     target = targets.get(dialect)
     if scalable:
+        if click.get_current_context().get_parameter_source("dialect") is ParameterSource.DEFAULT:
+            from .scalable import DIALECTS
+            dialect = DIALECTS[0]  # the first dialect with a scalable form, not the portable default
         _scalable_card(device_files, output, dialect, section, physics, form, fmt, quiet)
         return
     if form == "subckt" and target.leakage_template is None:
@@ -369,7 +378,7 @@ def _scalable_card(device_files, output, dialect, section, physics, form, fmt, q
     if len(device_files) != 1:
         _fail("--scalable takes one description (one scalable card)")
     for flag, bad in (("--section", section is not None), ("--physics numeric", physics != "closed"),
-                      ("--form subckt", form != "model"), ("--format json", fmt != "card")):
+                      ("--format json", fmt != "card")):
         if bad:
             _fail(f"--scalable does not combine with {flag} yet")
     f = device_files[0]
@@ -378,7 +387,7 @@ def _scalable_card(device_files, output, dialect, section, physics, form, fmt, q
     except InputError as e:
         _fail(str(e.located(file=f)))
     try:
-        text = scalable.scalable_card(r, 0, dialect)
+        text = (scalable.scalable_subckt if form == "subckt" else scalable.scalable_card)(r, 0, dialect)
     except ValueError as e:
         _fail(f"--scalable: {e}")
     if not quiet:

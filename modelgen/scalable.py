@@ -23,6 +23,11 @@ of the process; RS of a vertical diode's neutral regions scales as
 
 Units on the card: IS, ISR, IKF [A/m^2]; JSW [A/m]; CJO [F/m^2]; CJSW
 [F/m]; RS [ohm m^2]; the instance's ``area`` [m^2] and ``pj`` [m].
+
+Because ngspice gives ISR and IKF no perimeter term, the ``.model`` form
+loses the sidewall's share of them; :func:`scalable_subckt` writes the
+form that does not: a subcircuit whose one diode has the junction area
+``area + pj*xj`` behind a resistor RS A / area.
 """
 
 from __future__ import annotations
@@ -71,7 +76,7 @@ def _columns(result: Result):
                  "spread": spread}
 
 
-def geometry_notes(per_unit_spread, xj, area, perimeter):
+def geometry_notes(per_unit_spread, xj, area, perimeter, sidewall_exact=False):
     """Where the scalable card's scaling stops holding at an instance geometry.
 
     Parameters
@@ -83,6 +88,9 @@ def geometry_notes(per_unit_spread, xj, area, perimeter):
         Junction depth, the sidewall's height [m].
     area, perimeter : float
         The instance's bottom area [m^2] and perimeter [m].
+    sidewall_exact : bool
+        True for the subcircuit form (:func:`scalable_subckt`), which scales
+        every term with the whole junction area: the first criterion does not apply.
 
     Returns
     -------
@@ -103,10 +111,10 @@ def geometry_notes(per_unit_spread, xj, area, perimeter):
     notes = []
     side = perimeter * xj
     share = side / (area + side) if area + side > 0 else 0.0
-    if share > SIDEWALL_SHARE:
+    if share > SIDEWALL_SHARE and not sidewall_exact:
         notes.append(f"sidewall share {share:.3g} of the junction area (P xj / (A + P xj) over {SIDEWALL_SHARE:g}): "
                      "ngspice scales ISR and IKF by area only, so the recombination current and the knee lose "
-                     "the sidewall's share")
+                     "the sidewall's share (the --form subckt scalable card carries it)")
     if side > PLANAR_SIDEWALL * area:
         notes.append(f"perimeter x junction depth is {side / area:.3g} of the area (over {PLANAR_SIDEWALL:g}): "
                      "the sidewall as a planar strip of height xj is doubtful; measure devices of several "
@@ -117,7 +125,7 @@ def geometry_notes(per_unit_spread, xj, area, perimeter):
     return notes
 
 
-def scalable_params(result: Result, i=0, dialect="ngspice"):
+def scalable_params(result: Result, i=0, dialect="ngspice", sidewall_exact=False):
     """The per-area and per-perimeter card values of device ``i``, and notes on where they stop scaling.
 
     Parameters
@@ -128,6 +136,9 @@ def scalable_params(result: Result, i=0, dialect="ngspice"):
         Which device.
     dialect : str
         A dialect with a scalable form (:data:`DIALECTS`).
+    sidewall_exact : bool
+        For the subcircuit form: leave out the note on the sidewall share of
+        ISR and IKF, which that form carries.
 
     Returns
     -------
@@ -164,7 +175,7 @@ def scalable_params(result: Result, i=0, dialect="ngspice"):
         for k in ("JSW", "CJSW", "PHP", "MJSW", "FCS"):
             values.pop(k, None)
     notes = geometry_notes(float(parts["spread"][i]), float(parts["xj"][i]), float(parts["bottom"][i]),
-                           float(parts["perimeter"][i]))
+                           float(parts["perimeter"][i]), sidewall_exact)
     if parts["contact"][i] > 0:
         notes.append(f"contact resistance {parts['contact'][i]:.4g} ohm does not scale with the junction: "
                      f"carried in RS as a specific resistivity Rc A = {parts['contact'][i] * parts['bottom'][i]:.4g} "
@@ -176,6 +187,20 @@ def scalable_params(result: Result, i=0, dialect="ngspice"):
 SCALING = ("scaling: ngspice multiplies IS, ISR, IKF, CJO by area and JSW, CJSW by pj, and divides RS by area; "
            "the sidewall's share P xj / (A + P xj) of the recombination current (ISR) and of the knee (IKF) is "
            "not carried, so at small or narrow geometries those are underestimated by about that share")
+
+
+def _heads(result, i, dialect, name, form, label, extra, notes):
+    """The file header (``NAME: scalable diode FORM``, with ``extra`` lines) and the card's comment lines
+    (where it came from, the scaling notes, the device's findings but the standing caution)."""
+    header = file_header(dialect, f"{name}: scalable diode {form}", 1, result=result, extra=extra)
+    src = result.device.source[i] if len(result.device.source) else ""
+    lines = [f"* {name}: {label}" + (f", from {safe(str(src).rsplit('/', 1)[-1])}" if src else "")]
+    for n in notes:
+        lines += comment_lines("scaling: " + n)
+    for severity, _kind, text in result.findings_for(i):
+        if severity != "caution":
+            lines += comment_lines(f"{severity}: {text}")
+    return header, lines
 
 
 def instance_line(name):
@@ -205,15 +230,8 @@ def scalable_card(result: Result, i=0, dialect="ngspice", name=None):
     values, notes = scalable_params(result, i, dialect)
     name = result.device.name[i] if name is None else name
     units = "; ".join(f"{k} [{UNITS[k]}]" for k in values)
-    header = file_header(dialect, f"{name}: scalable diode model card", 1, result=result,
-                         extra=(instance_line(name), f"units: {units}", SCALING))
-    src = result.device.source[i] if len(result.device.source) else ""
-    lines = [f"* {name}: scalable" + (f", from {safe(str(src).rsplit('/', 1)[-1])}" if src else "")]
-    for n in notes:
-        lines += comment_lines("scaling: " + n)
-    for severity, _kind, text in result.findings_for(i):
-        if severity != "caution":
-            lines += comment_lines(f"{severity}: {text}")
+    header, lines = _heads(result, i, dialect, name, "model card", "scalable",
+                           (instance_line(name), f"units: {units}", SCALING), notes)
     texts = format_numbers(np.array(list(values.values())))
     target = targets.get(dialect)
     body = environment().get_template(target.template).render(
@@ -222,4 +240,75 @@ def scalable_card(result: Result, i=0, dialect="ngspice", name=None):
         header=header, sections=[{"name": None, "body": body}])
 
 
-__all__ = ["DIALECTS", "SCALING", "UNITS", "geometry_notes", "instance_line", "scalable_card", "scalable_params"]
+#: Instance parameters of the subcircuit form's defaults: a 100 x 100 um diode [m^2], [m].
+DEFAULT_INSTANCE = (1e-8, 4e-4)
+
+#: A standing header line of the subcircuit form: what it scales.
+SUBCKT_SCALING = ("scaling: the diode inside has the junction area area + pj*xj (bottom and sidewall), so IS, ISR, "
+                  "IKF and CJO, given per m^2 of junction, scale with both, as the per-device cards take them; the "
+                  "series resistance R1 is RS A / area [ohm]")
+
+
+def subckt_instance_line(name):
+    """The instance syntax of the subcircuit form (a header comment)."""
+    return f"instance: X1 a k {name} area=<bottom area, m^2> pj=<perimeter, m>"
+
+
+def scalable_subckt(result: Result, i=0, dialect="ngspice", name=None):
+    """The scalable subcircuit of device ``i``: every term scaled with the whole junction area.
+
+    ngspice's diode scales ISR and IKF by its instance's ``area`` alone
+    (module docstring), so a ``.model`` card cannot give the sidewall its
+    share of the recombination current and of the knee. This form can: a
+    subcircuit with instance parameters ``area`` [m^2] and ``pj`` [m]
+    holds one diode of junction area ``area + pj*xj`` (the bottom plus the
+    sidewall strip of height xj, the planar-strip model of the per-device
+    cards) whose model gives IS, ISR, IKF and CJO per m^2 of junction, and
+    a resistor ``R1 = (RS A)/area`` for the neutral regions (and the contact
+    as a specific resistivity). At any geometry it gives the per-device
+    card's equations: IS, ISR, IKF and CJO are the same totals, the sidewall
+    shares VJ, M and FC with the bottom as the per-device card's PHP, MJSW
+    and FCS do, and RS carries the same total current.
+
+    Parameters
+    ----------
+    result : Result
+    i : int
+    dialect : str
+        A dialect whose target has a scalable subcircuit template.
+    name : str, optional
+        The subcircuit and model name (a checked SPICE identifier); default the device's.
+
+    Returns
+    -------
+    str
+        The library text: header (instance syntax, units, notes, findings),
+        then ``.subckt NAME a k area=.. pj=..`` ... ``.ends``; the defaults
+        are :data:`DEFAULT_INSTANCE`.
+    """
+    target = targets.get(dialect)
+    if dialect not in DIALECTS or target.scalable_template is None:
+        raise ValueError(f"the {target.name} dialect has no scalable subcircuit form; "
+                         f"scalable cards: {', '.join(DIALECTS)}")
+    values, notes = scalable_params(result, i, dialect, sidewall_exact=True)
+    for k in ("JSW", "CJSW", "PHP", "MJSW", "FCS"):
+        values.pop(k, None)
+    rsa = values.pop("RS", 0.0)
+    xj = float(result.device.junction_depth[i]) if result.device.perimeter[i] > 0 else 0.0
+    name = result.device.name[i] if name is None else name
+    units = "; ".join(f"{k} [{UNITS[k]}]" for k in values) + "; R1 = RS A / area with RS A [ohm*m^2]"
+    notes.append("the generation source of the per-device --form subckt is not in this form: the reverse current "
+                 "is the diode's own")
+    header, lines = _heads(result, i, dialect, name, "subcircuit", "scalable subcircuit",
+                           (subckt_instance_line(name), f"units: {units}", SUBCKT_SCALING), notes)
+    texts = format_numbers(np.array(list(values.values()) + [rsa, xj, *DEFAULT_INSTANCE]))
+    *params, rsa_text, xj_text, area_text, pj_text = texts
+    body = environment().get_template(target.scalable_template).render(
+        card={"header": lines, "name": name, "params": list(zip(values, params)), "rsa": rsa_text if rsa > 0 else None,
+              "xj": xj_text, "area": area_text, "pj": pj_text})
+    return environment().get_template(target.library_template).render(
+        header=header, sections=[{"name": None, "body": body}])
+
+
+__all__ = ["DEFAULT_INSTANCE", "DIALECTS", "SCALING", "SUBCKT_SCALING", "UNITS", "geometry_notes", "instance_line",
+           "scalable_card", "scalable_params", "scalable_subckt", "subckt_instance_line"]

@@ -134,6 +134,11 @@ class Target:
         Template of the form that wraps the diode and a behavioural source for
         the reverse generation current (:mod:`modelgen.leakage`) in a
         subcircuit; None where the target has no such source.
+    scalable_template : str or None
+        Template of the scalable subcircuit (:func:`modelgen.scalable.scalable_subckt`):
+        instance parameters area and pj, one diode of junction area
+        area + pj xj and a series resistance RS A / area; None where the
+        target has no parameterised subcircuit.
     """
 
     name: str
@@ -147,6 +152,7 @@ class Target:
     template: str = "card.j2"
     library_template: str = "library.j2"
     leakage_template: str | None = None
+    scalable_template: str | None = None
 
     @property
     def simulator(self):
@@ -234,7 +240,7 @@ register(Target("ngspice", "ngspice level-1 diode",
                 carries=("IS", "JSW", "N", "RS", "CJO", "CJSW", "VJ", "PHP", "M", "MJSW", "FC", "FCS", "TT",
                          "BV", "IBV", "EG", "XTI", "ISR", "NR", "IKF", "PJ", "TCV", "TRS1", "TRS2", "TNOM"),
                 sidewall="split", sections=True, equations="ngspice", simulators=("ngspice",), cost=COST,
-                leakage_template="subckt.j2"))
+                leakage_template="subckt.j2", scalable_template="scalable.j2"))
 # gnucap 0.36 diode: no ISR/NR/IKF; BV is accepted but its default diode path has no breakdown
 register(Target("gnucap", "gnucap diode",
                 carries=("IS", "N", "RS", "CJO", "VJ", "M", "FC", "TT", "EG", "XTI", "TNOM"),

@@ -53,8 +53,11 @@ returned like any other, with ``wrapper`` the subcircuit's name; if the
 subcircuit also holds modelgen's generation source (:mod:`modelgen.leakage`)
 across its two ports, in exactly the form modelgen writes it
 (``B... a k I = -(IG * pow(1 - min(V(a,k), 0) / VJ, M) - IE) * (1 - exp(min(V(a,k), 0) / VG))``),
-its five numbers are the card's ``source``. Any other element is ignored, as
-outside subcircuits. A ``.subckt`` inside another, or one never closed, is refused.
+its five numbers are the card's ``source``. A subcircuit in the scalable form
+modelgen writes (:func:`modelgen.scalable.scalable_subckt`: ``.subckt NAME a k
+area=A pj=P``, an optional ``R1 a j {RSA/area}`` and ``D1 j k NAME
+area={area+pj*XJ}``, exactly so) gives the card's ``scaling``, those four
+numbers. Any other element is ignored, as outside subcircuits. A ``.subckt`` inside another, or one never closed, is refused.
 
 Not handled: the title line of a full netlist (the text is read the way a
 ``.include``-d library is: the first line is an ordinary line), and
@@ -106,6 +109,11 @@ class Card:
     source : dict or None
         The generation source beside the diode in that subcircuit, by name
         (IG, IE, M, VJ, VG), when it has modelgen's form.
+    scaling : dict or None
+        The scalable subcircuit's defaults and scaling, when it has
+        modelgen's form: ``area`` [m^2] and ``pj`` [m] (the instance
+        defaults), ``xj`` [m] (the diode's area is area + pj xj) and ``rsa``
+        [ohm m^2] (the series resistor RSA / area; 0 without one).
     """
 
     name: str
@@ -115,6 +123,7 @@ class Card:
     section: str | None = None
     wrapper: str | None = None
     source: dict | None = field(default=None, hash=False)
+    scaling: dict | None = field(default=None, hash=False)
 
 
 # Scale factors (ngspice manual, Table 2.2 "Ngspice scale factors"), as exact
@@ -360,6 +369,57 @@ def _source(pieces, ports, file):
     return dict(zip(_SOURCE_KEYS, values))
 
 
+#: modelgen's scalable subcircuit (templates/scalable.j2): its opening line, resistor and diode.
+_SCALABLE_OPEN = re.compile(r"\.subckt\s+(\S+)\s+(\S+)\s+(\S+)\s+area\s*=\s*" + _NUM + r"\s+pj\s*=\s*" + _NUM + r"\s*\Z",
+                            re.IGNORECASE)
+_SCALABLE_R = re.compile(r"R\w*\s+(\S+)\s+(\S+)\s+\{\s*" + _NUM + r"\s*/\s*area\s*\}\s*\Z", re.IGNORECASE)
+_SCALABLE_D = re.compile(r"D\w*\s+(\S+)\s+(\S+)\s+(\S+)\s+area\s*=\s*\{\s*area\s*\+\s*pj\s*\*\s*" + _NUM
+                         + r"\s*\}\s*\Z", re.IGNORECASE)
+
+
+class _Scalable:
+    """What is seen of modelgen's scalable subcircuit form inside one ``.subckt`` (see :func:`read_cards`)."""
+
+    def __init__(self, pieces, file):
+        m = _SCALABLE_OPEN.match(" ".join(s for _, s in pieces))
+        self.line = pieces[0][0]
+        self.file = file
+        self.ports = [m.group(2).lower(), m.group(3).lower()] if m else None
+        self.instance = (m.group(4), m.group(5)) if m else None
+        self.resistor = None     # (from, to, RSA text, line)
+        self.diode = None        # (anode, cathode, model, XJ text, line)
+        self.extra = False       # another R or D element: not modelgen's form
+
+    def see(self, pieces, keyword):
+        text = " ".join(s for _, s in pieces)
+        m = (_SCALABLE_R if keyword.startswith("r") else _SCALABLE_D).match(text)
+        slot = "resistor" if keyword.startswith("r") else "diode"
+        if m is None or getattr(self, slot) is not None:
+            self.extra = True
+        else:
+            setattr(self, slot, (*[g.lower() for g in m.groups()[:-1]], m.groups()[-1], pieces[0][0]))
+
+    def scaling(self, model):
+        """The four numbers, if this subcircuit is the form exactly around ``model``; else None."""
+        if self.ports is None or self.diode is None or self.extra:
+            return None
+        a, k = self.ports
+        d_a, d_k, d_model, xj, d_line = self.diode
+        if d_model != model.lower() or d_k != k:
+            return None
+        rsa, r_line = "0", d_line
+        if self.resistor is not None:
+            r_from, r_to, rsa, r_line = self.resistor
+            if r_from != a or r_to != d_a or d_a in (a, k):
+                return None
+        elif d_a != a:
+            return None
+        values = [parse_number(v, file=self.file, line=n, key=key) for v, n, key in
+                  ((self.instance[0], self.line, "area"), (self.instance[1], self.line, "pj"), (xj, d_line, "xj"),
+                   (rsa, r_line, "rsa"))]
+        return dict(zip(("area", "pj", "xj", "rsa"), values))
+
+
 def read_cards(text, *, file=None):
     """Every ``.model`` card in ``text``, in order, as :class:`Card` objects.
 
@@ -380,12 +440,17 @@ def read_cards(text, *, file=None):
                                       file=file, row=first)
             if len(words) < 2:
                 raise CardSyntaxError(".subckt without a name", file=file, row=first)
-            wrapper = [words[1], first, words[2:4] if len(words) >= 4 else None, len(cards), None]
+            wrapper = [words[1], first, words[2:4] if len(words) >= 4 else None, len(cards), None,
+                       _Scalable(pieces, file)]
             continue
         if keyword == ".ends":
             if wrapper is not None:
-                cards[wrapper[3]:] = [replace(c, wrapper=wrapper[0], source=wrapper[4]) for c in cards[wrapper[3]:]]
+                cards[wrapper[3]:] = [replace(c, wrapper=wrapper[0], source=wrapper[4],
+                                              scaling=wrapper[5].scaling(c.name)) for c in cards[wrapper[3]:]]
             wrapper = None
+            continue
+        if wrapper is not None and keyword[:1] in ("r", "d") and wrapper[5].ports is not None:
+            wrapper[5].see(pieces, keyword)
             continue
         if wrapper is not None and keyword.startswith("b"):
             found = _source(pieces, wrapper[2], file)

@@ -480,6 +480,20 @@ def at_instance(params, area, pj):
     return out
 
 
+#: The parameters of a scalable subcircuit's diode given per m^2 of junction (:func:`modelgen.scalable.scalable_subckt`).
+PER_JUNCTION_AREA = ("IS", "ISR", "IKF", "CJO")
+
+
+def at_subckt_instance(params, scaling):
+    """The totals one default instance of a scalable subcircuit sees: the diode's per-m^2 values times
+    its junction area area + pj xj, and its series resistor RSA / area as RS."""
+    junction = scaling["area"] + scaling["pj"] * scaling["xj"]
+    out = {k: v * junction if k in PER_JUNCTION_AREA else v for k, v in params.items()}
+    if scaling["rsa"] > 0:
+        out["RS"] = scaling["rsa"] / scaling["area"]
+    return out
+
+
 def _scalable_lines(text):
     """Line numbers of the headers of scalable cards (``..: scalable diode model card, modelgen ...``)."""
     return [n for n, line in enumerate(reader.split_lines(text), start=1)
@@ -490,7 +504,8 @@ def diode_cards(text, file=None):
     """The diode cards of ``text``, validated (:func:`validate`); InputError when there is none.
 
     A card under a scalable card's header is taken as the instance :data:`SCALABLE_REFERENCE` sees it
-    (:func:`at_instance`): what runs in the simulator and the evaluator is that 100 x 100 um diode.
+    (:func:`at_instance`): what runs in the simulator and the evaluator is that 100 x 100 um diode. The
+    diode of a scalable subcircuit is taken as its default instance sees it (:func:`at_subckt_instance`).
     """
     from dataclasses import replace
 
@@ -504,6 +519,7 @@ def diode_cards(text, file=None):
             j = bisect.bisect_left(headers, c.line) - 1
             if j >= 0 and headers[j] in scalable:
                 cards[k] = replace(c, params=at_instance(c.params, *SCALABLE_REFERENCE))
+    cards = [replace(c, params=at_subckt_instance(c.params, c.scaling)) if c.scaling else c for c in cards]
     for c in cards:
         validate(c, file)
     return cards
