@@ -587,12 +587,13 @@ def summary(values):
     out = {"count": int(v.size)}
     if not v.size:
         return out
-    out["mean"] = float(np.mean(v))
-    out["std"] = float(np.std(v, ddof=1)) if v.size > 1 else 0.0
+    lo, hi = float(v.min()), float(v.max())
+    out["mean"] = float(np.mean(v)) if lo != hi else lo  # a constant's mean and spread are exact
+    out["std"] = float(np.std(v, ddof=1)) if v.size > 1 and lo != hi else 0.0
     for q, x in zip(PERCENTILES, np.percentile(v, PERCENTILES)):
         out[f"p{q}"] = float(x)
-    out["min"] = float(v.min())
-    out["max"] = float(v.max())
+    out["min"] = lo
+    out["max"] = hi
     return out
 
 

@@ -291,3 +291,13 @@ def test_a_second_process_and_chunks_give_the_same_numbers(monkeypatch):
         np.testing.assert_array_equal(whole.params[k], split.params[k])
     for k in whole.figures:
         np.testing.assert_array_equal(whole.figures[k], split.figures[k])
+
+
+def test_a_parameter_that_does_not_vary_has_no_spread():
+    # a constant has zero variance and is its own mean (definition); summing 500 equal floats would
+    # otherwise leave round-off of 1e-16 relative in both
+    device, tol = device_and({"n.doping": {"sigma": "5 %", "distribution": "lognormal"}})
+    stats = spread.run(device, tol, 500, seed=4, figures=()).statistics()["parameters"]
+    for name in ("IBV", "EG", "XTI", "N"):
+        assert stats[name]["std"] == 0.0 and stats[name]["mean"] == stats[name]["min"] == stats[name]["max"]
+    assert stats["IS"]["std"] > 0
