@@ -16,6 +16,11 @@ from modelgen.spice import evaluator
 BASE = ROOT / "examples" / "switching_diode.toml"
 
 
+def base_text():
+    """The example's description without its own [spread] table (the tests give theirs)."""
+    return BASE.read_text().split("[spread]")[0]
+
+
 def base_table():
     return tomllib.loads(BASE.read_text())
 
@@ -117,15 +122,17 @@ def test_description_with_spread_loads_as_without(tmp_path):
     # a [spread] table is not a part of the nominal device: the card is the one without it
     plain = description.load(BASE)
     path = tmp_path / "with_spread.toml"
-    path.write_text(BASE.read_text() + '\n[spread]\n"n.doping" = { sigma = "5 %", distribution = "lognormal" }\n'
+    path.write_text(base_text() + '\n[spread]\n"n.doping" = { sigma = "5 %", distribution = "lognormal" }\n'
                     'p.lifetime = { sigma = "0.2 ns", shared = "local" }\n')
     device, tol, _raw = spread.load(path)
     a, b = extraction.derive(plain), extraction.derive(device)
     assert all(a.params[k][0] == b.params[k][0] for k in extraction.PARAMETERS)
     assert [t.key for t in tol.entries] == ["n.doping", "p.lifetime"]
     assert tol.entries[1].sigma == pytest.approx(0.2e-9) and tol.reference_area == pytest.approx(2.5e-9)
+    bare = tmp_path / "bare.toml"
+    bare.write_text(base_text())
     with pytest.raises(InputError, match="no \\[spread\\] table"):
-        spread.load(BASE)
+        spread.load(bare)
 
 
 @pytest.mark.parametrize("body, key, words", [
@@ -146,7 +153,7 @@ def test_description_with_spread_loads_as_without(tmp_path):
 def test_bad_spread_gives_one_line_naming_file_and_key(tmp_path, body, key, words):
     # the rule of the person we build for: bad input gets one line naming the file and the key
     path = tmp_path / "bad.toml"
-    path.write_text(BASE.read_text() + "\n[spread]\n" + body + "\n")
+    path.write_text(base_text() + "\n[spread]\n" + body + "\n")
     with pytest.raises(InputError) as e:
         spread.load(path)
     text = str(e.value)
