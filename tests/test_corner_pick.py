@@ -32,7 +32,8 @@ def ngspice_vf(library, section, current=1e-3, name=NAME):
                                f"D1 a 0 {name}", ".control", "set numdgt=12", "op", "print v(a)", ".endc",
                                ".end"]) + "\n")
     done = subprocess.run(["ngspice", "-b", str(deck)], check=False, capture_output=True, text=True, timeout=60)
-    assert "rror" not in done.stdout + done.stderr, done.stdout + done.stderr
+    said = done.stdout + done.stderr
+    assert "rror" not in said and "warning" not in said.lower(), said  # the section loads with no warning
     found = re.findall(r"^v\(a\)\s*=\s*(\S+)", done.stdout, re.MULTILINE)
     assert len(found) == 1, done.stdout
     return float(found[0])
