@@ -414,7 +414,15 @@ def _scalable_card(device_files, output, dialect, section, physics, form, fmt, q
               help="table: mean, standard deviation and percentiles per card parameter and figure. json: the "
                    "same with p1, p99, min, max and units, all SI.")
 @click.option("-o", "--output", type=click.Path(), help="Write to this file (atomically) instead of stdout.")
-def spread_command(device_file, samples, seed, figures, kind, fmt, output):
+@click.option("--corner", "corner_specs", multiple=True, metavar="SPEC",
+              help="Write a corner library instead of the statistics: one .lib section per corner, SPEC "
+                   "[SECTION=]FIGURE:POSITION, FIGURE one of the figures or IS, POSITION low or high (-3 / +3 "
+                   "sigma), typical (median), +Ksigma / -Ksigma, or pP (a percentile, p5, p99.5); e.g. "
+                   "VF@1mA:low. Each corner is the most probable sample near that percentile of the figure; a "
+                   "'typical' section holds the nominal card. Repeat for more.")
+@click.option("--dialect", type=DIALECT, default=None,
+              help="Dialect of the corner library's cards (with --corner; one with .lib sections; default ngspice).")
+def spread_command(device_file, samples, seed, figures, kind, fmt, output, corner_specs, dialect):
     """Monte Carlo of DEVICE.toml's [spread] table through the closed-form physics.
 
     Draws the keys the [spread] table names (normal, lognormal or uniform;
@@ -432,6 +440,8 @@ def spread_command(device_file, samples, seed, figures, kind, fmt, output):
     from . import spread
 
     _check_output(output, (device_file,))
+    if corner_specs or dialect:
+        return _spread_corners(device_file, corner_specs, samples, seed, kind, dialect, fmt, figures, output)
     try:
         device, tolerances, _ = spread.load(device_file)
         chosen = tuple(figures) or ("VF@1mA", "IR@-5V", "C@-1V", "BV", "TT")
@@ -451,6 +461,35 @@ def spread_command(device_file, samples, seed, figures, kind, fmt, output):
         widths = [max(len(r[j]) for r in rows) for j in range(len(rows[0]))]
         text = (f"{stats['samples']} samples, seed {stats['seed']}, variation {stats['kind']}\n"
                 + "\n".join("  ".join(c.ljust(widths[j]) for j, c in enumerate(r)).rstrip() for r in rows) + "\n")
+    _emit(text, output, (device_file,))
+
+
+def _spread_corners(device_file, specs, samples, seed, kind, dialect, fmt, figures, output):
+    """``spread --corner``: the corner library to ``output`` (or stdout), one summary line per corner on stderr."""
+    from . import corner_pick, spread
+
+    if not specs:
+        _fail("--dialect applies to the corner library: give --corner SPEC")
+    if figures or fmt != "table":
+        _fail("--figure and --format apply to the statistics; with --corner the output is a .lib library")
+    dialect = dialect or "ngspice"
+    if not targets.get(dialect).sections:
+        _fail(f"--corner: the {dialect} dialect has no .lib sections; a corner library needs a dialect with .lib "
+              "sections (ngspice)")
+    try:
+        chosen = corner_pick.parse_specs(specs)
+    except InputError as e:
+        _fail(str(e))
+    try:
+        device, tolerances, _ = spread.load(device_file)
+        nominal = extraction.derive(device)
+        run, corners = corner_pick.choose(device, tolerances, chosen, samples, seed, kind, fork=True)
+    except InputError as e:
+        _fail(str(e.located(file=device_file)) if not e.file else str(e))
+    text = corner_pick.library(nominal, run, corners, dialect, source=os.path.basename(device_file))
+    click.echo(f"modelgen: {len(run)} samples, seed {seed}, variation {kind}", err=True)
+    for c in corners:
+        click.echo(f"modelgen: {c.summary()}", err=True)
     _emit(text, output, (device_file,))
 
 
@@ -853,8 +892,11 @@ def corners_command(device_file, at, t_from, t_to, t_step, per_corner, dialect, 
               help="Summary files PREFIX.csv and PREFIX.json; default: the library's name without its "
                    "extension, plus .summary.")
 @click.option("--corners", "corner_spec", metavar="SPEC",
-              help="Add slow / typical / fast corner cards in .lib sections (ngspice dialect): three percentiles "
-                   "of IS (\"5,50,95\") or \"3sigma\". The per-row cards then go in section 'lot'.")
+              help="Add three corner cards in .lib sections (ngspice dialect), real rows at three percentiles of a "
+                   "figure: [FIGURE:]SPEC, SPEC three percentiles (\"5,50,95\") or \"Ksigma\" (-K, 0, +K sigma), "
+                   "FIGURE IS (the default; sections slow, typical, fast) or VF@1mA, IR@-5V, C@-1V, BV, TT "
+                   "(sections low, typical, high), e.g. \"VF@1mA:3sigma\". The per-row cards then go in section "
+                   "'lot'.")
 @click.option("--corner-name", default="DCORNER", show_default=True,
               help="Model name of the corner cards (the same in each corner section).")
 @click.option("-q", "--quiet", is_flag=True, help="No progress bar or summary line on stderr.")
@@ -877,8 +919,9 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
     nothing is written if any row is bad. Output is deterministic.
 
     \b
-    Example:
+    Examples:
       modelgen lots examples/lot_table.csv -o lot.lib --dialect ngspice --corners 5,50,95
+      modelgen lots examples/lot_table.csv -o lot.lib --dialect ngspice --corners VF@1mA:3sigma
     """
     from . import lots
 
@@ -889,6 +932,7 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
         if not eq:
             _fail(f"--set {item!r}: write KEY=VALUE")
         set_values[key.strip()] = value.strip()
+    corner_by = None
     if corner_spec:
         from .description import check_name
 
@@ -899,11 +943,16 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
         if not targets.get(dialect).sections:
             _fail(f"the {dialect} dialect has no .lib sections; --corners needs a dialect with .lib sections "
                   f"(ngspice)")
+        try:
+            corner_by = lots.parse_corners(corner_spec)[0]
+        except InputError as e:
+            _fail(str(e))
     prefix = summary_prefix or os.path.splitext(output)[0] + ".summary"
     paths = {"library": output, "csv": prefix + ".csv", "json": prefix + ".json"}
     errors, n = [], 0
     try:
-        with lots.LotWriter(paths, dialect=dialect, inputs=[table_file], fork=True, signals=True) as writer, \
+        with lots.LotWriter(paths, dialect=dialect, inputs=[table_file], fork=True, signals=True,
+                            figure=corner_by if corner_by != "IS" else None) as writer, \
                 _LotProgress(table_file, quiet) as progress:
             for table in clock.timed("read", lots.read_chunks(table_file, sets=set_values,
                                                                 name_pattern=name_pattern, rows=lots.CHUNK)):
@@ -928,7 +977,7 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
             corner_cards = []
             if corner_spec:
                 try:
-                    corner_cards = lots.corner_cards(whole, corner_spec, corner_name)
+                    corner_cards = lots.corner_cards(whole, corner_spec, corner_name, writer.figure_values())
                 except InputError as e:
                     _fail(str(e))
             n_skipped = len(np.unique([e.row for e in errors])) if errors else 0

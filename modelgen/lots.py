@@ -681,63 +681,113 @@ def statistics(cols):
     return stats
 
 
-def _ordinal(x):
-    """5 -> '5th', 1 -> '1st', 2.5 -> '2.5th', 0.135 -> '0.135th'."""
-    text = f"{x:.4g}"
-    if text.isdigit() and not 10 <= int(text) % 100 <= 20:
-        return text + {1: "st", 2: "nd", 3: "rd"}.get(int(text) % 10, "th")
-    return text + "th"
-
-
-def corner_cards(result, spec, name):
+def corner_cards(result, spec, name, values=None):
     """The corner cards of a lot: ``(section, name, row, comment)`` for each of :func:`corner_rows`.
 
     Every corner card carries the same model ``name`` in its own section, so
     switching corners changes one ``.lib`` line; the comment says which row
-    it is and why.
+    it is and why. ``values``: the spec's figure over the rows when already
+    computed (see :func:`corner_rows`).
     """
-    return [(section, name, i, f"corner {section}: the row at the {_ordinal(pct)} percentile of IS "
-                               f"({result.device.name[i]}), a real row so its parameters stay consistent")
-            for section, i, pct in corner_rows(result, spec)]
+    from .corner_pick import figure_unit, ordinal
+
+    figure = parse_corners(spec)[0]
+    rows = corner_rows(result, spec, values)
+    if figure == "IS":
+        return [(section, name, i, (f"corner {section}: the row at the {ordinal(pct)} percentile of IS "
+                                    f"({result.device.name[i]}), a real row so its parameters stay consistent"))
+                for section, i, pct, _ in rows]
+    unit = figure_unit(figure)
+    return [(section, name, i, (f"corner {section}: the row at the {ordinal(pct)} percentile of {figure} "
+                                f"({result.device.name[i]}, {figure} = {value:.6g} {unit}), a real row so its "
+                                "parameters stay consistent"))
+            for section, i, pct, value in rows]
 
 
-def corner_rows(result, spec):
-    """Rows chosen as slow / typical / fast corners by their saturation current IS.
+#: Section names of the three corners: chosen by IS (as always), and by another figure.
+IS_SECTIONS = ("slow", "typical", "fast")
+FIGURE_SECTIONS = ("low", "typical", "high")
 
-    ``spec``: ``"P1,P2,P3"`` percentiles (e.g. ``"5,50,95"``) or ``"Ksigma"``
-    (e.g. ``"3sigma"``: the normal distribution's percentiles at -K, 0, +K
-    sigma). Real rows are taken (the one nearest each percentile of IS) so
-    each corner card keeps a physically consistent set of parameters.
 
-    Returns
-    -------
-    list of (section, row index, percentile)
+def parse_corners(spec):
+    """A ``--corners`` specification -> (figure, three percentiles, three section names).
+
+    ``[FIGURE:]SPEC``: FIGURE is ``IS`` (the default) or one of
+    :mod:`modelgen.spread`'s figures (``VF@1mA``, ``IR@-5V``, ``C@-1V``,
+    ``BV``, ``TT``); SPEC is ``"P1,P2,P3"`` (three increasing percentiles,
+    e.g. ``"5,50,95"``) or ``"Ksigma"`` (the normal distribution's
+    percentiles at -K, 0, +K sigma). By IS the sections are slow, typical,
+    fast; by another figure low, typical, high (of that figure).
+    One-line InputError (key ``--corners``).
     """
-    spec = spec.strip().lower()
-    if spec.endswith("sigma"):
+    from .corner_pick import parse_figure
+
+    figure, colon, rest = spec.partition(":")
+    figure = parse_figure(figure, key="--corners") if colon else "IS"
+    text = (rest if colon else spec).strip().lower()
+    if text.endswith("sigma"):
         from scipy.stats import norm
         try:
-            k = float(spec[:-5])
+            k = float(text[:-5])
         except ValueError:
-            raise InputError(f"{spec!r}: write e.g. 3sigma", key="--corners") from None
+            raise InputError(f"{text!r}: write e.g. 3sigma", key="--corners") from None
         if not k > 0:
             raise InputError("sigma must be positive", key="--corners")
         pcts = [100 * norm.cdf(-k), 50.0, 100 * norm.cdf(k)]
     else:
         try:
-            pcts = [float(x) for x in spec.split(",")]
+            pcts = [float(x) for x in text.split(",")]
         except ValueError:
-            raise InputError(f"{spec!r}: give three percentiles, e.g. 5,50,95, or Ksigma",
-                             key="--corners") from None
+            raise InputError(f"{text!r}: give three percentiles, e.g. 5,50,95, or Ksigma, optionally after a "
+                             "figure (VF@1mA:3sigma)", key="--corners") from None
         if len(pcts) != 3 or not (0 <= pcts[0] < pcts[1] < pcts[2] <= 100):
-            raise InputError("three increasing percentiles within 0-100 (slow, typical, fast)",
-                             key="--corners")
-    order = np.argsort(result.params["IS"], kind="stable")
+            raise InputError("three increasing percentiles within 0-100 (low, typical, high)", key="--corners")
+    return figure, pcts, IS_SECTIONS if figure == "IS" else FIGURE_SECTIONS
+
+
+def corner_figure(result, figure):
+    """The values of a ``--corners`` figure over the rows of ``result`` (a chunk's full Result), SI."""
+    from .corner_pick import figure_values
+
+    try:
+        return figure_values(result, figure)
+    except InputError as e:
+        raise InputError(e.message, key="--corners") from None
+
+
+def corner_rows(result, spec, values=None):
+    """Rows chosen as the three corners of a figure (by default IS): see :func:`parse_corners`.
+
+    Real rows are taken (the one nearest each percentile of the figure, by
+    rank) so each corner card keeps a physically consistent set of
+    parameters. ``values``: the figure over the rows when already computed
+    (a lot written chunk by chunk: :class:`LotWriter` collects them); else
+    computed from ``result``, which must then hold what the figure needs
+    (IS, VF, BV and TT need the card parameters only).
+
+    Returns
+    -------
+    list of (section, row index, percentile, figure value)
+
+    Raises
+    ------
+    InputError
+        A bad spec, or the figure not finite for a row (key ``--corners``).
+    """
+    figure, pcts, sections = parse_corners(spec)
+    v = np.asarray(corner_figure(result, figure) if values is None else values, float)
+    bad = ~np.isfinite(v)
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise InputError(f"{figure} is not finite for {result.device.name[i]} (and {int(bad.sum()) - 1} more "
+                         "rows): no corner can be placed by it", key="--corners")
+    order = np.argsort(v, kind="stable")
     n = len(order)
     out = []
-    for section, p in zip(("slow", "typical", "fast"), pcts):
+    for section, p in zip(sections, pcts):
         rank = int(round(p / 100 * (n - 1)))
-        out.append((section, int(order[rank]), p))
+        i = int(order[rank])
+        out.append((section, i, p, float(v[i])))
     return out
 
 
@@ -856,9 +906,14 @@ class LotWriter:
     keep : bool
         Keep what the header and corner cards need of each chunk (off when
         the caller holds the whole Result and passes it to :meth:`finish`).
+    figure : str, optional
+        A ``--corners`` figure (:func:`parse_corners`) to evaluate on each
+        chunk while its full Result is at hand (IR and C need more than the
+        kept skeleton holds): :meth:`figure_values` gives them over all rows.
     """
 
-    def __init__(self, paths, *, dialect, inputs=(), fork=False, fork_min=None, signals=False, keep=True):
+    def __init__(self, paths, *, dialect, inputs=(), fork=False, fork_min=None, signals=False, keep=True,
+                 figure=None):
         from .output import Commit
 
         self.commit = Commit(paths, inputs=inputs, signals=signals)
@@ -872,6 +927,8 @@ class LotWriter:
         self.pieces = []     # per chunk: (file, offset, [(key, length, separator)]) of its JSON items
         self.rows = 0
         self.pending = None  # (Beside, part file name) of a chunk's summary being made in a second process
+        self.figure = figure
+        self.figures = []    # per chunk: the figure's values (figure given)
 
     def __enter__(self):
         self.commit.__enter__()
@@ -921,6 +978,8 @@ class LotWriter:
                 self._spool_items(self.spool, items)
             self.body.write(cards.table_cards(result, self.dialect, texts=texts, cache=cache)[0].encode("utf-8"))
             self.numeric.append(_numeric(summary_columns(result)))
+            if self.figure is not None:
+                self.figures.append(corner_figure(result, self.figure))
             if self.keep:
                 self.parts.append(_Part(result))
             self.rows += len(result)
@@ -947,6 +1006,10 @@ class LotWriter:
         self.commit.copy("csv", fh, start, header["csv"])
         lengths = [(k, n, sep) for k, n, sep in header["items"]]
         self.pieces.append((fh, start + header["csv"], lengths))
+
+    def figure_values(self):
+        """The ``figure``'s values over every row added (None without a figure)."""
+        return np.concatenate(self.figures) if self.figure is not None and self.figures else None
 
     def result(self):
         """One Result over all good rows, for the header and :func:`corner_rows` (not for physics).

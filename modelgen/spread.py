@@ -352,6 +352,17 @@ def _repeat(device, n):
     return rep(device)
 
 
+def effective_sigma(spread, tolerance, area):
+    """The sigma entry ``tolerance`` of ``spread`` draws with for a device of ``area`` [m^2] (key's SI units).
+
+    A local entry with area scaling: sigma sqrt(reference_area / area)
+    (Pelgrom's area law, see the module text); any other: sigma as given.
+    """
+    if tolerance.shared == "local" and tolerance.area_scaling:
+        return tolerance.sigma * math.sqrt(spread.reference_area / area)
+    return tolerance.sigma
+
+
 def load(path):
     """A description file with a [spread] table -> (nominal Device, Tolerances, flat inputs as written)."""
     path = str(path)
@@ -415,9 +426,7 @@ def sample(device, spread, n, seed, kind="both"):
         if kind not in ("both", t.shared):
             continue
         nominal = float(_get(device, t.key)[0])
-        s = t.sigma
-        if t.shared == "local" and t.area_scaling:
-            s = s * math.sqrt(spread.reference_area / area)
+        s = effective_sigma(spread, t, area)
         if t.distribution == "lognormal":
             factor[t.key] = factor.get(t.key, 0.0) + s / nominal * u
         else:

@@ -113,6 +113,8 @@ def _written_by_modelgen(tmp_path, dialect):
     runs["lot"] = ["lots", str(ROOT / "examples" / "lot_table.csv")]
     if DIALECTS[dialect].sections:
         runs["lot_corners"] = ["lots", str(ROOT / "examples" / "lot_table.csv"), "--corners", "5,50,95"]
+        runs["spread_corners"] = ["spread", str(ROOT / "examples" / "switching_diode.toml"), "--samples", "2000",
+                                  "--corner", "VF@1mA:low", "--corner", "IR@-5V:high"]
     files = []
     for name, args in runs.items():
         out = tmp_path / f"{name}.lib"

@@ -181,7 +181,8 @@ def test_library_of_1000_rows_loads_in_ngspice(tmp_path):
     assert all(np.all(res[nm]["current"] > 0) for nm in names)
 
 
-@pytest.mark.parametrize("spec", ["5,50", "5,x", "0sigma", "xsigma"])
+@pytest.mark.parametrize("spec", ["5,50", "5,x", "0sigma", "xsigma", "VF@x:3sigma", "XX:5,50,95", "VF@1mA:5,50",
+                                  "IR@5V:3sigma"])
 def test_bad_corner_spec_is_one_line_naming_the_option_once(tmp_path, spec):
     r = run("lots", ROOT / "examples" / "lot_table.csv", "-o", tmp_path / "c.lib", "--dialect", "ngspice",
             "--corners", spec)
@@ -226,3 +227,58 @@ def test_standard_error_columns_ride_along_unused(tmp_path):
     b = lots.read_csv(ROOT / "examples" / "lot_table.csv")
     assert set(a.columns) == set(b.columns)
     np.testing.assert_array_equal(a.columns["n.doping"], b.columns["n.doping"])
+
+
+def _ngspice_vf(lib, section, names, tmp_path, current=1e-3):
+    """ngspice's terminal voltage at ``current`` of each model of ``names`` in ``.lib lib section`` [V]."""
+    import subprocess
+
+    lines = ["* forward voltages", f".lib {lib} {section}"]
+    for k, name in enumerate(names):
+        lines += [f"I{k} 0 n{k} dc {current!r}", f"D{k} n{k} 0 {name}"]
+    lines += [".control", "set numdgt=12", "op"] + [f"print v(n{k})" for k in range(len(names))] + [".endc", ".end"]
+    deck = tmp_path / f"vf_{section}.cir"
+    deck.write_text("\n".join(lines) + "\n")
+    done = subprocess.run(["ngspice", "-b", str(deck)], check=False, capture_output=True, text=True, timeout=60)
+    assert "rror" not in done.stdout + done.stderr, done.stdout + done.stderr
+    found = dict(re.findall(r"^v\((n\d+)\)\s*=\s*(\S+)", done.stdout, re.MULTILINE))
+    return np.array([float(found[f"n{k}"]) for k in range(len(names))])
+
+
+def test_corners_by_forward_voltage_are_the_lot_rows_ngspice_ranks_so(tmp_path):
+    # a lot's corners by a figure: real rows, the lowest and highest forward voltage at -3 / +3 sigma of
+    # six rows (the normal percentiles 0.135 and 99.865 fall on the extreme ranks), ranked here by ngspice
+    # itself running every row's card (the simulator as the outside reference)
+    need("ngspice")
+    out = tmp_path / "vf.lib"
+    r = run("lots", ROOT / "examples" / "lot_table.csv", "-o", out, "--dialect", "ngspice", "--corners",
+            "VF@1mA:3sigma", "-q")
+    assert r.exit_code == 0, r.output
+    parsed = cards.reader.read_file(out)
+    rows = [c for c in parsed if c.section == "lot"]
+    corner = {c.section: c.params for c in parsed if c.name == "DCORNER"}
+    assert list(corner) == ["low", "typical", "high"]
+    vf = _ngspice_vf(out, "lot", [c.name for c in rows], tmp_path)
+    assert corner["low"] == rows[int(np.argmin(vf))].params
+    assert corner["high"] == rows[int(np.argmax(vf))].params
+    assert corner["typical"] in [c.params for c in rows]
+    vf_corner = {s: _ngspice_vf(out, s, ["DCORNER"], tmp_path)[0] for s in corner}
+    assert vf_corner["low"] < vf_corner["typical"] < vf_corner["high"]
+    r = run("check", out)
+    assert r.exit_code == 0, r.output
+
+
+def test_corners_by_leakage_pick_other_rows_and_bare_specs_still_mean_is(tmp_path):
+    lot = ROOT / "examples" / "lot_table.csv"
+    texts = {}
+    for spec in ("IR@-5V:0,50,100", "VF@1mA:0,50,100", "3sigma", "IS:3sigma"):
+        out = tmp_path / f"{len(texts)}.lib"
+        r = run("lots", lot, "-o", out, "--dialect", "ngspice", "--corners", spec, "-q")
+        assert r.exit_code == 0, r.output
+        texts[spec] = out.read_text()
+    assert texts["3sigma"] == texts["IS:3sigma"]  # IS stays the default figure, with its section names
+    by = {spec: {c.section: c.params for c in cards.reader.read_cards(t) if c.name == "DCORNER"}
+          for spec, t in texts.items()}
+    assert list(by["IS:3sigma"]) == ["slow", "typical", "fast"]
+    assert by["IR@-5V:0,50,100"]["low"] != by["VF@1mA:0,50,100"]["low"]
+    assert "percentile of IR@-5V" in texts["IR@-5V:0,50,100"]
