@@ -414,7 +414,12 @@ def _scalable_card(device_files, output, dialect, section, physics, form, fmt, q
               help="table: mean, standard deviation and percentiles per card parameter and figure. json: the "
                    "same with p1, p99, min, max and units, all SI.")
 @click.option("-o", "--output", type=click.Path(), help="Write to this file (atomically) instead of stdout.")
-def spread_command(device_file, samples, seed, figures, kind, fmt, output):
+@click.option("--statistical", is_flag=True,
+              help="Write a statistical library for ngspice's own Monte Carlo instead: one process variable per "
+                   "[spread] entry (global: one draw per run; local: per instance), the card's parameters as "
+                   "expressions of them, the linearisation error over --samples samples in its header "
+                   "(--format json: that document instead).")
+def spread_command(device_file, samples, seed, figures, kind, fmt, output, statistical):
     """Monte Carlo of DEVICE.toml's [spread] table through the closed-form physics.
 
     Draws the keys the [spread] table names (normal, lognormal or uniform;
@@ -432,6 +437,18 @@ def spread_command(device_file, samples, seed, figures, kind, fmt, output):
     from . import spread
 
     _check_output(output, (device_file,))
+    if statistical:
+        from . import statistical as stat
+
+        dialect = click.get_current_context().params.get("dialect") or "ngspice"
+        try:
+            device, tolerances, _ = spread.load(device_file)
+            made = stat.library(device, tolerances, dialect=dialect, kind=kind, samples=samples, seed=seed,
+                                source=device_file)
+        except InputError as e:
+            _fail(str(e.located(file=device_file)) if not e.file and e.key != "--dialect" else str(e))
+        _emit(cards.dumps(made.document) if fmt == "json" else made.text, output, (device_file,))
+        return
     try:
         device, tolerances, _ = spread.load(device_file)
         chosen = tuple(figures) or ("VF@1mA", "IR@-5V", "C@-1V", "BV", "TT")
