@@ -49,7 +49,7 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -58,6 +58,7 @@ from .cards.render import card_columns, environment, file_header
 from .cards.text import comment_lines, format_number, safe
 from .errors import InputError
 from .spice import evaluator
+from .spread import SHARINGS
 
 #: Dialects with a statistical form (ngspice's numparam random functions and mc_source).
 DIALECTS = ("ngspice",)
@@ -86,6 +87,7 @@ class Variable:
     shared: str          # "global" or "local"
     distribution: str    # the entry's: normal, lognormal, uniform
     step: float          # what x = 1 does to the key: a log step (lognormal) or a step in SI units
+    mix: tuple = ()      # correlated: x = sum c z_j over (c, j), z_j the independent draw of variable j
 
     @property
     def draw(self):
@@ -98,7 +100,10 @@ def variables(device, tolerances, kind="both"):
 
     ``kind`` ("global", "local", "both") keeps the entries of that sharing.
     Names: the model name in lower case, ``_g_`` or ``_l_``, the key with
-    dots as underscores (``dsw_demo_g_n_doping``).
+    dots as underscores (``dsw_demo_g_n_doping``). Correlated entries
+    (``correlations`` in [spread]) get their ``mix``: the row of the
+    Cholesky factor of their sharing's correlation matrix that
+    :func:`modelgen.spread.sample` mixes its independent normal draws with.
     """
     area = float(device.area[0])
     prefix = str(device.name[0]).lower()
@@ -113,6 +118,20 @@ def variables(device, tolerances, kind="both"):
             s = s / float(spread._get(device, t.key)[0])
         out.append(Variable(f"{prefix}_{t.shared[0]}_{t.key.replace('.', '_')}", t.key, t.shared,
                             t.distribution, s))
+    index = {(v.key, v.shared): j for j, v in enumerate(out)}
+    for shared in SHARINGS if tolerances.correlations else ():
+        chosen, rho = tolerances.correlation_matrix(shared)
+        if len(chosen) < 2 or np.array_equal(rho, np.eye(len(chosen))) or (chosen[0].key, shared) not in index:
+            continue
+        lower = np.linalg.cholesky(rho)  # as spread.sample mixes its normal draws
+        at = [index[(t.key, shared)] for t in chosen]
+        rows_ = [tuple((float(lower[i, k]), at[k]) for k in range(i + 1) if lower[i, k] != 0.0)
+                 for i in range(len(at))]
+        mixed = [r != ((1.0, at[i]),) for i, r in enumerate(rows_)]
+        read = {j for r, m in zip(rows_, mixed) if m for _, j in r}  # draws a mixture reads
+        for i, j in enumerate(at):
+            if mixed[i] or j in read:
+                out[j] = replace(out[j], mix=rows_[i])
     return out
 
 
@@ -281,6 +300,18 @@ def linearisation_error(device, tolerances, variables_, expressions, n=4000, see
     return out
 
 
+def _declarations(found, shared):
+    """The template's variables of one sharing: (name, draw, mixing text or None), and the mixed ones last.
+
+    A correlated variable reads its own draw into ``NAME_z`` (a plain .param:
+    one value) and is the mixture ``{0+c1*A_z+c2*B_z}`` of its group's.
+    """
+    mine = [v for v in found if v.shared == shared]
+    names = [f"{v.name}_z" for v in found]
+    return {"draws": [(v.name, DRAWS[v.draw], bool(v.mix)) for v in mine],
+            "mixes": [(v.name, Expression("linear", 0.0, v.mix).text(names)) for v in mine if v.mix]}
+
+
 @dataclass
 class Library:
     """A statistical library: its text and its document (variables, expressions, linearisation error)."""
@@ -345,9 +376,12 @@ def library(device, tolerances, *, dialect="ngspice", kind="both", samples=4000,
         ".subckt)",
     ]
     for v in found:
-        sigma = "log sigma" if v.distribution == "lognormal" else "sigma"
+        sigma = "log sigma" if v.distribution == "lognormal" else "sigma (SI)"
         extra.append(f"  {v.name}: {v.key}, {v.shared}, {v.distribution}, {sigma} {v.step:.6g}"
                      + (" (scaled for this area)" if v.shared == "local" else ""))
+    if any(v.mix for v in found):
+        extra.append("correlated variables: each reads its own draw into NAME_z and is the mixture of its "
+                     "group's z by the Cholesky factor of the [spread] correlations, as modelgen spread draws")
     if logs:
         extra.append(f"linear in log, P = P0 exp(sum b x): {', '.join(logs)}")
     if linears:
@@ -363,8 +397,7 @@ def library(device, tolerances, *, dialect="ngspice", kind="both", samples=4000,
     template = environment().get_template("statistical.j2")
     body = template.render(
         name=name, lines=lines,
-        globals=[(v.name, DRAWS[v.draw]) for v in found if v.shared == "global"],
-        locals=[(v.name, DRAWS[v.draw]) for v in found if v.shared == "local"],
+        globals=_declarations(found, "global"), locals=_declarations(found, "local"),
         params=[(k, e.text(names)) for k, e in expressions.items()])
     text = environment().get_template(targets.get(dialect).library_template).render(
         header=header, sections=[{"name": None, "body": body}])
@@ -377,7 +410,8 @@ def library(device, tolerances, *, dialect="ngspice", kind="both", samples=4000,
     document = {
         "name": name, "dialect": dialect, "samples": int(samples), "seed": int(seed),
         "variables": [{"name": v.name, "key": v.key, "shared": v.shared, "distribution": v.distribution,
-                       "draw": DRAWS[v.draw], "step": v.step} for v in found],
+                       "draw": DRAWS[v.draw], "step": v.step,
+                       "mix": {f"{found[j].name}_z": c for c, j in v.mix}} for v in found],
         "parameters": {k: {"form": e.form, "nominal": e.nominal,
                            "sensitivities": {names[j]: b for b, j in e.terms}} for k, e in expressions.items()},
         "linearisation_error": error,
@@ -397,6 +431,7 @@ _TERM = re.compile(r"([-+]?)(" + _UNUM + r")\*(" + _IDENT + r")")
 _TERMS = r"([-+]?" + _UNUM + r"\*" + _IDENT + r"(?:[-+]" + _UNUM + r"\*" + _IDENT + r")*)"
 _LOG = re.compile(r"\{(" + _NUM + r")\*exp\(" + _TERMS + r"\)\}\Z")
 _LINEAR = re.compile(r"\{(" + _NUM + r")((?:[-+]" + _UNUM + r"\*" + _IDENT + r")+)\}\Z")
+_MIX = re.compile(r"\.param\s+(" + _IDENT + r")\s*=\s*(\{\S+\})\Z")
 _PARAM = re.compile(r"([A-Za-z][A-Za-z0-9_]*)=(\S+)\Z")
 
 
@@ -420,7 +455,8 @@ def read_library(text, file=None):
     """A statistical library modelgen wrote -> its variables and the points it is checked at, as Cards.
 
     The form is read exactly as :func:`library` writes it (the draw and read
-    ``.param`` lines, one ``.subckt NAME a k`` with ``D1 a k NAME`` and the
+    ``.param`` lines, correlated variables as mixtures of their group's
+    ``NAME_z`` draws, one ``.subckt NAME a k`` with ``D1 a k NAME`` and the
     ``.model`` whose values are numbers or :class:`Expression` texts); any
     other line than comments is refused. Returns one
     :class:`~modelgen.cards.reader.Card` per point: all variables 0
@@ -436,7 +472,7 @@ def read_library(text, file=None):
     """
     from .cards import reader
 
-    variables_, kinds = [], {}
+    variables_, kinds, zs = [], {}, set()
     draws, model, wrapper, params, first = {}, None, None, {}, None
     for number, pieces in reader._logical_lines(str(text), file):
         def bad(message, number=number):
@@ -450,8 +486,21 @@ def read_library(text, file=None):
             continue
         m = _READ.match(low)
         if m:
-            if m.group(1) != m.group(2) or m.group(1) not in draws:
-                raise bad(f"{m.group(1)} does not read its own draw")
+            name, drawn = m.groups()
+            if drawn not in draws or name not in (drawn, drawn + "_z"):
+                raise bad(f"{name} does not read its own draw")
+            if name == drawn:
+                variables_.append(name)
+                kinds[name] = "local" if wrapper else "global"
+            else:
+                zs.add(name)
+            continue
+        m = _MIX.match(low)
+        if m:
+            mixed = _LINEAR.match(m.group(2))
+            if not mixed or float(mixed.group(1)) != 0.0 or m.group(1) + "_z" not in zs:
+                raise bad(f"{m.group(1)} is not a mixture of draws of the library's form")
+            _terms(mixed.group(2), {z: 0 for z in zs}, bad)
             variables_.append(m.group(1))
             kinds[m.group(1)] = "local" if wrapper else "global"
             continue
