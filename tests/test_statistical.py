@@ -218,6 +218,26 @@ def test_modelgen_check_passes_on_the_library(tmp_path):
     assert f"{1 + len(globals_)} of {1 + len(globals_)} checks passed" in res.output
 
 
+def test_check_sees_when_ngspice_evaluates_another_point_than_modelgen(tmp_path):
+    """The check has the power to see a variable override that does not take: each +1 point of the README
+    library, given the nominal point's numbers on modelgen's side, fails in ngspice (each global variable
+    moves the card by more than the check's 0.1 % tolerance)."""
+    need("ngspice")
+    from dataclasses import replace
+
+    from modelgen.spice import check
+
+    library = _library(tmp_path, README_DEVICE)
+    cards = check.diode_cards(library.read_text(), str(library))
+    nominal, moved = cards[0], cards[1:]
+    assert moved and all(c.section.endswith("+1") for c in moved)
+    plan = [("ngspice",)] * (1 + len(moved))
+    honest = check.check_cards(cards, plan)
+    assert all(o.ok for o in honest)
+    lying = check.check_cards([nominal] + [replace(c, params=dict(nominal.params)) for c in moved], plan)
+    assert lying[0].ok and not any(o.ok for o in lying[1:]), check.table(lying)
+
+
 def test_check_refuses_a_library_edited_out_of_its_form(tmp_path):
     library = _library(tmp_path, README_DEVICE)
     text = library.read_text()

@@ -8,7 +8,11 @@ capacitance at :data:`CAP_VOLTS` (0, -1 and -5 V, from an AC analysis), and
 for a card inside a ``.subckt`` with modelgen's generation source
 (:mod:`modelgen.leakage`) the subcircuit's current at :data:`REVERSE_VOLTS`
 (-1 and -5 V) where the simulator runs behavioural sources, at
-one temperature: the card's TNOM, or the temperature asked for. modelgen's
+one temperature: the card's TNOM, or the temperature asked for. A
+statistical library (:mod:`modelgen.statistical`, known by its header) is
+checked at points: every process variable 0, then each global variable at
++1, the deck giving ngspice the variables as ``.param`` values and the
+parameters as the library's expressions of them, for ngspice to evaluate. modelgen's
 evaluator (:mod:`modelgen.spice.evaluator`) computes the same points from
 the same parameters with that simulator's equations and constants, at the
 same temperature. A card passes when every point agrees within
