@@ -422,7 +422,13 @@ def _scalable_card(device_files, output, dialect, section, physics, form, fmt, q
                    "'typical' section holds the nominal card. Repeat for more.")
 @click.option("--dialect", type=DIALECT, default=None,
               help="Dialect of the corner library's cards (with --corner; one with .lib sections; default ngspice).")
-def spread_command(device_file, samples, seed, figures, kind, fmt, output, corner_specs, dialect):
+@click.option("--statistical", is_flag=True,
+              help="Write a statistical library for ngspice's own Monte Carlo instead: one process variable per "
+                   "[spread] entry (global: one draw per run; local: per instance), the card's parameters as "
+                   "expressions of them, the linearisation error over --samples samples in its header "
+                   "(--format json: that document instead).")
+def spread_command(device_file, samples, seed, figures, kind, fmt, output, corner_specs, dialect,
+                   statistical):
     """Monte Carlo of DEVICE.toml's [spread] table through the closed-form physics.
 
     Draws the keys the [spread] table names (normal, lognormal or uniform;
@@ -432,14 +438,35 @@ def spread_command(device_file, samples, seed, figures, kind, fmt, output, corne
     asked for. A draw outside a key's physical range is an error, not
     clipped: use a lognormal distribution or a smaller sigma.
 
+    With --corner it writes a corner library instead (one .lib section per
+    corner, each the most probable sample at that percentile of a figure);
+    with --statistical, a library for ngspice's own Monte Carlo (the card's
+    parameters as expressions of the [spread] table's process variables).
+
     \b
     Examples:
       modelgen spread DEVICE.toml --samples 100000 --seed 7
       modelgen spread DEVICE.toml --figure VF@1mA --figure IR@-5V --format json -o spread.json
+      modelgen spread DEVICE.toml --corner VF@1mA:low --corner VF@1mA:high --corner IR@-5V:high -o corners.lib
+      modelgen spread DEVICE.toml --statistical -o statistical.lib
     """
     from . import spread
 
     _check_output(output, (device_file,))
+    if statistical:
+        from . import statistical as stat
+
+        if corner_specs:
+            _fail("--statistical and --corner write different libraries: give one of them")
+        dialect = dialect or "ngspice"
+        try:
+            device, tolerances, _ = spread.load(device_file)
+            made = stat.library(device, tolerances, dialect=dialect, kind=kind, samples=samples, seed=seed,
+                                source=device_file)
+        except InputError as e:
+            _fail(str(e.located(file=device_file)) if not e.file and e.key != "--dialect" else str(e))
+        _emit(cards.dumps(made.document) if fmt == "json" else made.text, output, (device_file,))
+        return
     if corner_specs or dialect:
         return _spread_corners(device_file, corner_specs, samples, seed, kind, dialect, fmt, figures, output)
     try:

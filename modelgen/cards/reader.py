@@ -114,6 +114,10 @@ class Card:
         modelgen's form: ``area`` [m^2] and ``pj`` [m] (the instance
         defaults), ``xj`` [m] (the diode's area is area + pj xj) and ``rsa``
         [ohm m^2] (the series resistor RSA / area; 0 without one).
+    expressions, variables : dict or None, tuple
+        A point of a statistical library (:func:`modelgen.statistical.read_library`):
+        each parameter as an Expression of the process variables, and the
+        variables' (name, value) at this point; ``params`` holds their values.
     """
 
     name: str
@@ -124,6 +128,8 @@ class Card:
     wrapper: str | None = None
     source: dict | None = field(default=None, hash=False)
     scaling: dict | None = field(default=None, hash=False)
+    expressions: dict | None = field(default=None, hash=False)
+    variables: tuple = ()
 
 
 # Scale factors (ngspice manual, Table 2.2 "Ngspice scale factors"), as exact

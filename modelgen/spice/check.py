@@ -8,7 +8,11 @@ capacitance at :data:`CAP_VOLTS` (0, -1 and -5 V, from an AC analysis), and
 for a card inside a ``.subckt`` with modelgen's generation source
 (:mod:`modelgen.leakage`) the subcircuit's current at :data:`REVERSE_VOLTS`
 (-1 and -5 V) where the simulator runs behavioural sources, at
-one temperature: the card's TNOM, or the temperature asked for. modelgen's
+one temperature: the card's TNOM, or the temperature asked for. A
+statistical library (:mod:`modelgen.statistical`, known by its header) is
+checked at points: every process variable 0, then each global variable at
++1, the deck giving ngspice the variables as ``.param`` values and the
+parameters as the library's expressions of them, for ngspice to evaluate. modelgen's
 evaluator (:mod:`modelgen.spice.evaluator`) computes the same points from
 the same parameters with that simulator's equations and constants, at the
 same temperature. A card passes when every point agrees within
@@ -292,7 +296,7 @@ def _number(value):
     return text[:-2] if text.endswith(".0") else text
 
 
-def deck_cards(cards, sources=False):
+def deck_cards(cards, sources=False, expressions=False):
     """The ``.model`` lines of a deck, rebuilt from the parsed numbers, and the deck's names.
 
     Nothing of the file's text is copied: the name is made here, the keys
@@ -300,12 +304,24 @@ def deck_cards(cards, sources=False):
     With ``sources``, each card that has a generation source also gets a
     subcircuit ``<label>X a k`` holding the diode and the source, written
     here in modelgen's form from its five numbers; the third value returned
-    maps those labels to their subcircuit names.
+    maps those labels to their subcircuit names. With ``expressions``, a
+    point of a statistical library (:func:`modelgen.statistical.read_library`)
+    is written as the simulator's own arithmetic: a ``.param <label>V<j> =
+    value`` per process variable (the variable overridden at the point's
+    value) and each varying parameter as its expression of those names,
+    rebuilt here from the parsed numbers (:meth:`modelgen.statistical.Expression.text`).
     """
     labels = [f"{_LABEL}{k}" for k in range(len(cards))]
     lines = []
     wrapped = {}
     for label, c in zip(labels, cards):
+        if expressions and c.expressions:
+            names = [f"{label}V{j}" for j in range(len(c.variables))]
+            lines += [f".param {n} = {_number(x)}" for n, (_, x) in zip(names, c.variables)]
+            lines.append(f".model {label} D (")
+            lines += [f"+ {key}={e.text(names)}" for key, e in c.expressions.items()]
+            lines.append("+ )")
+            continue
         lines.append(f".model {label} D (")
         lines += [f"+ {key}={_number(value)}" for key, value in c.params.items()]
         lines.append("+ )")
@@ -366,8 +382,10 @@ def _reference(card, simulator, temperature, file):
 
 
 def _simulate_chunk(simulator, chunk, temperature, timeout):
+    from ..statistical import SIMULATORS as evaluating
+
     sources = targets.SIMULATORS[simulator].behavioural_source
-    library, labels, *wrapped = deck_cards(chunk, sources)
+    library, labels, *wrapped = deck_cards(chunk, sources, expressions=simulator in evaluating)
     rs = {label: c.params.get("RS", 0.0) for label, c in zip(labels, chunk)}
     extra = {"wrapped": wrapped[0], "reverse_volts": REVERSE_VOLTS} if sources and wrapped[0] else {}
     return runner(simulator).simulate(library, labels, DC_VOLTS, CAP_VOLTS, rs=rs, temperature_c=temperature,
@@ -506,10 +524,17 @@ def diode_cards(text, file=None):
     A card under a scalable card's header is taken as the instance :data:`SCALABLE_REFERENCE` sees it
     (:func:`at_instance`): what runs in the simulator and the evaluator is that 100 x 100 um diode. The
     diode of a scalable subcircuit is taken as its default instance sees it (:func:`at_subckt_instance`).
+    A statistical library (known by its header) gives one card per point it is checked at: every
+    process variable 0, then each global one at +1 (:func:`modelgen.statistical.read_library`).
     """
     from dataclasses import replace
 
-    cards = [c for c in reader.read_cards(text, file=file) if c.type == "D"]
+    from .. import statistical
+
+    if statistical.is_statistical(text):
+        cards = statistical.read_library(text, file)
+    else:
+        cards = [c for c in reader.read_cards(text, file=file) if c.type == "D"]
     if not cards:
         raise InputError("no diode (.model NAME D) card found", file=file)
     scalable = _scalable_lines(text)
