@@ -422,12 +422,16 @@ def _scalable_card(device_files, output, dialect, section, physics, form, fmt, q
                    "'typical' section holds the nominal card. Repeat for more.")
 @click.option("--dialect", type=DIALECT, default=None,
               help="Dialect of the corner library's cards (with --corner; one with .lib sections; default ngspice).")
+@click.option("--form", type=click.Choice(["model", "subckt"]), default=None,
+              help="With --corner: model (default) writes .model cards; subckt writes each corner as a .subckt "
+                   "with the diode and a behavioural source for its own reverse generation current (as card "
+                   "--form subckt), so a corner chosen by leakage leaks in the simulator as its physics does.")
 @click.option("--statistical", is_flag=True,
               help="Write a statistical library for ngspice's own Monte Carlo instead: one process variable per "
                    "[spread] entry (global: one draw per run; local: per instance), the card's parameters as "
                    "expressions of them, the linearisation error over --samples samples in its header "
                    "(--format json: that document instead).")
-def spread_command(device_file, samples, seed, figures, kind, fmt, output, corner_specs, dialect,
+def spread_command(device_file, samples, seed, figures, kind, fmt, output, corner_specs, dialect, form,
                    statistical):
     """Monte Carlo of DEVICE.toml's [spread] table through the closed-form physics.
 
@@ -467,8 +471,9 @@ def spread_command(device_file, samples, seed, figures, kind, fmt, output, corne
             _fail(str(e.located(file=device_file)) if not e.file and e.key != "--dialect" else str(e))
         _emit(cards.dumps(made.document) if fmt == "json" else made.text, output, (device_file,))
         return
-    if corner_specs or dialect:
-        return _spread_corners(device_file, corner_specs, samples, seed, kind, dialect, fmt, figures, output)
+    if corner_specs or dialect or form:
+        return _spread_corners(device_file, corner_specs, samples, seed, kind, dialect, fmt, figures, output,
+                               form or "model")
     try:
         device, tolerances, _ = spread.load(device_file)
         chosen = tuple(figures) or ("VF@1mA", "IR@-5V", "C@-1V", "BV", "TT")
@@ -491,15 +496,17 @@ def spread_command(device_file, samples, seed, figures, kind, fmt, output, corne
     _emit(text, output, (device_file,))
 
 
-def _spread_corners(device_file, specs, samples, seed, kind, dialect, fmt, figures, output):
+def _spread_corners(device_file, specs, samples, seed, kind, dialect, fmt, figures, output, form):
     """``spread --corner``: the corner library to ``output`` (or stdout), one summary line per corner on stderr."""
     from . import corner_pick, spread
 
     if not specs:
-        _fail("--dialect applies to the corner library: give --corner SPEC")
+        _fail("--dialect and --form apply to the corner library: give --corner SPEC")
     if figures or fmt != "table":
         _fail("--figure and --format apply to the statistics; with --corner the output is a .lib library")
     dialect = dialect or "ngspice"
+    if form == "subckt" and targets.get(dialect).leakage_template is None:
+        _fail(f"--form subckt: the {dialect} dialect has no behavioural source; use --dialect ngspice")
     if not targets.get(dialect).sections:
         _fail(f"--corner: the {dialect} dialect has no .lib sections; a corner library needs a dialect with .lib "
               "sections (ngspice)")
@@ -513,7 +520,10 @@ def _spread_corners(device_file, specs, samples, seed, kind, dialect, fmt, figur
         run, corners = corner_pick.choose(device, tolerances, chosen, samples, seed, kind, fork=True)
     except InputError as e:
         _fail(str(e.located(file=device_file)) if not e.file else str(e))
-    text = corner_pick.library(nominal, run, corners, dialect, source=os.path.basename(device_file))
+    try:
+        text = corner_pick.library(nominal, run, corners, dialect, source=os.path.basename(device_file), form=form)
+    except ValueError as e:
+        _fail(f"--form subckt: {e}")
     click.echo(f"modelgen: {len(run)} samples, seed {seed}, variation {kind}", err=True)
     for c in corners:
         click.echo(f"modelgen: {c.summary()}", err=True)

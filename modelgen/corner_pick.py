@@ -465,7 +465,7 @@ def choose(device, tolerances, specs, n, seed, kind="both", *, fork=False):
     return run, out
 
 
-def library(nominal, run, corners, dialect, *, source="", samples=None):
+def library(nominal, run, corners, dialect, *, source="", samples=None, form="model"):
     """The corner library: a ``typical`` section (the nominal card, unless a corner is named so), then one
     section per corner, each defining the nominal device's name.
 
@@ -480,6 +480,13 @@ def library(nominal, run, corners, dialect, *, source="", samples=None):
         A target with ``.lib`` sections.
     source : str
         The description's file name, for the header.
+    form : {"model", "subckt"}
+        ``subckt``: each section's card is a ``.subckt`` with the diode and
+        the generation source fitted to that card's own physics
+        (:func:`modelgen.leakage.closed_form`, to the default reverse bias
+        of the fit window), so a corner chosen by leakage leaks in the
+        simulator as its physics does (a level-1 card's reverse current is
+        its IS alone).
 
     Raises
     ------
@@ -500,4 +507,16 @@ def library(nominal, run, corners, dialect, *, source="", samples=None):
     extra = [(f"corners picked from {n} Monte Carlo samples of {source or name}'s [spread] table (seed "
               f"{run.seed}, variation {run.kind}); sections: {sections}"),
              f"every section defines {name}: choose a corner with .lib FILE SECTION"]
+    if form == "subckt":
+        from dataclasses import replace
+
+        from . import extraction, leakage, targets
+
+        equations = targets.get(dialect).equations
+        generated = [leakage.closed_form(p.result, cards.card_columns(p.result, dialect)[1],
+                                         extraction.LEAKAGE_BIAS, equations) for p in parts]
+        for p in parts:  # the source carries the leakage those findings say a card cannot
+            p.result.findings = [f for f in p.result.findings if f.kind not in ("leakage", "numeric-leakage")]
+        parts = [replace(p, source=g.values()) for p, g in zip(parts, generated)]
+        extra += list(leakage.header_lines(generated))
     return cards.render(parts, dialect, title=f"{name}: corner library", extra=extra)

@@ -203,3 +203,32 @@ def test_score_correlation_is_the_one_the_samples_show():
     i, j = keys.index("n.doping"), keys.index("n.lifetime")
     assert stated[i, j] < -0.3  # the example correlates them at -0.5 in its global draws, which dominate
     assert np.allclose(seen, stated, atol=4 / np.sqrt(SAMPLES))
+
+
+def test_leakage_corners_in_subckt_form_leak_in_ngspice_as_their_samples_do(tmp_path, samples):
+    # a level-1 card's reverse current is its IS alone, so a corner chosen by leakage must carry its
+    # generation current to leak in the simulator: with --form subckt each section's .subckt holds the source
+    # fitted to its own physics. ngspice itself (at its default GMIN, 1e-12 S, which the source counts in, as
+    # card --form subckt does) runs each section at -5 V; the corners' currents lie among the samples within
+    # 0.1 sigma (in probability, standard normal) of -3 and +3 sigma of IR@-5V, and in order.
+    need("ngspice")
+    lib = tmp_path / "ir.lib"
+    r = run("spread", EXAMPLE, "--samples", SAMPLES, "--seed", SEED, "--corner", "IR@-5V:low", "--corner",
+            "IR@-5V:high", "--form", "subckt", "-o", lib)
+    assert r.exit_code == 0, r.output
+    measured = {}
+    for section in ("typical", "ir_m5v_low", "ir_m5v_high"):
+        deck = tmp_path / f"ir_{section}.cir"
+        deck.write_text("\n".join(["* leakage", f".lib {lib} {section}", "V1 k 0 dc 5", f"X1 0 k {NAME}",
+                                   ".control", "set numdgt=12", "op", "print i(V1)", ".endc", ".end"]) + "\n")
+        done = subprocess.run(["ngspice", "-b", str(deck)], check=False, capture_output=True, text=True,
+                              timeout=60)
+        said = done.stdout + done.stderr
+        assert "rror" not in said and "warning" not in said.lower(), said
+        measured[section] = -float(re.findall(r"^i\(v1\)\s*=\s*(\S+)", done.stdout, re.MULTILINE)[0])
+    ir = samples.figures["IR@-5V"]
+    for section, z in (("ir_m5v_low", -3.0), ("ir_m5v_high", 3.0)):
+        lo, hi = np.percentile(ir, 100 * norm.cdf([z - 0.1, z + 0.1]))
+        assert lo <= measured[section] <= hi, (section, lo, measured[section], hi)
+    assert measured["ir_m5v_low"] < measured["typical"] < measured["ir_m5v_high"]
+    assert run("check", lib).exit_code == 0
