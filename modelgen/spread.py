@@ -87,7 +87,7 @@ import numpy as np
 
 from . import description, extraction, leakage
 from .device import Side
-from .errors import InputError, shown, type_name
+from .errors import InputError, Problems, shown, type_name
 from .spice import evaluator
 from .textio import read_text
 from .units import KINDS, parse_quantity
@@ -699,7 +699,9 @@ def _derive_chunks(rows, starts, asked):
     """(params, figures) of the chunks of ``rows`` starting at ``starts``, each name -> array."""
     params, values = [], {f.text: [] for f in asked}
     for start in starts:  # rows are independent: chunks keep the arrays small
-        part = extraction.derive(rows.take(slice(start, start + CHUNK)))
+        chunk = rows.take(slice(start, start + CHUNK))
+        numbers = np.arange(start + 1, start + 1 + len(chunk))  # a sample the physics refuses is named
+        part = extraction.derive(chunk, Problems(len(chunk), sources=chunk.source, rows=numbers, label="sample"))
         params.append(part.params)
         for f in asked:
             values[f.text].append(figure_values(part, f))

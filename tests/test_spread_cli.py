@@ -65,3 +65,17 @@ def test_a_description_without_spread_is_refused(tmp_path):
     path.write_text(DEVICE.split("[spread]")[0])
     res = run("spread", path)
     assert res.exit_code == 2 and "no [spread] table" in res.output
+
+
+def test_a_sample_the_physics_refuses_is_named(tmp_path):
+    # a thin, lightly doped side whose drawn doping and thickness leave no neutral region at the reference
+    # bias (the depletion approximation, Sze & Ng 2007, ch. 2) is refused naming the sample, in one line
+    path = tmp_path / "thin.toml"
+    path.write_text(DEVICE.split("[spread]")[0].replace('doping = "5e16 cm^-3"\nthickness = "5 um"',
+                                                        'doping = "1e15 cm^-3"\nthickness = "1.5 um"')
+                    + '[spread]\n"n.doping" = { sigma = "60 %", distribution = "lognormal" }\n'
+                      '"n.thickness" = { sigma = "0.3 um" }\n')
+    res = run("spread", path, "--samples", "20000")
+    assert res.exit_code == 2 and "Traceback" not in res.output
+    assert len(res.output.strip().splitlines()) == 1
+    assert "thin.toml: sample " in res.output and "n.thickness" in res.output and "depleted" in res.output
