@@ -261,8 +261,12 @@ def test_corners_report(tmp_path):
         assert r.kind == "corners"
         check_page(r.html(), 5)
         run = corners.run(description.load(path), [-40, 27, 85, 125], "ngspice")
-        (t, is_phys), = series(r.panels[0].figure, "physics")
+        (tg, is_grid), (t, is_phys) = series(r.panels[0].figure, "physics")
         assert np.array_equal(t, run.evaluated) and np.array_equal(is_phys, run.result.params["IS"])
+        # between the corners: the same physics (corners.evaluate) at every temperature of the curve
+        between = corners.evaluate(description.load(path), corners.kelvin(tg))
+        assert np.array_equal(is_grid, between.params["IS"])
+        assert set(run.evaluated) <= set(tg)
         # the card's IS at each corner is what ngspice's temperature law makes of the fitted card
         card = dict(cards.card_values(run.result, run.nominal, "ngspice", overrides=run.fit.values)[0])
         (tg, is_card), = series(r.panels[0].figure, "card")

@@ -114,7 +114,10 @@ def report(path, iv_file=None, cv_file=None, *, dialect="ngspice", free=None, pr
         rel = f["stderr"] / abs(f["value"]) if f["value"] else float("inf")
         fitted.append([k, f"{f['value']:.5g}", f"{f['stderr']:.3g}", f"{100 * rel:.3g} %"])
     ck = cal.correlation["keys"]
-    corr = [["", *ck]] + [[a, *(f"{x:+.3f}" for x in row)] for a, row in zip(ck, cal.correlation["matrix"])]
+    # numbered columns: the keys' names would make the table wider than a printed page
+    corr = [["", *(f"({j + 1})" for j in range(len(ck)))]] + [
+        [f"({j + 1}) {a}", *(f"{x:+.3f}" for x in row)]
+        for j, (a, row) in enumerate(zip(ck, cal.correlation["matrix"]))]
     regions = [["region", "points", "rms", "worst"]] + [
         [k, str(v["points"]), f"{100 * v['rms']:.3g} %", f"{100 * v['worst']:+.3g} %"]
         for k, v in cal.residuals.items() if "points" in v]

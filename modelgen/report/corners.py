@@ -87,6 +87,7 @@ def report(path, temperatures_c, *, dialect="ngspice", progress=None):
     grid = np.union1d(np.linspace(corner_t.min(), corner_t.max(), GRID), corner_t)
     bias = float(run.result.derived["leakage_bias"][run.nominal])
     phys = physics_at(run.result, sim)
+    phys_grid = physics_at(corners.evaluate(device, corners.kelvin(grid)), sim)  # the same physics between corners
     on_grid = card_at(card, grid, sim) | {"leakage": card_leakage(card, grid, bias, sim)}
     at_corners = card_at(card, corner_t, sim) | {"leakage": card_leakage(card, corner_t, bias, sim)}
     if progress:
@@ -98,7 +99,10 @@ def report(path, temperatures_c, *, dialect="ngspice", progress=None):
             continue
         fig, axes = new_figure(2, 1, size=(6.4, 4.6), sharex=True, gridspec_kw={"height_ratios": [3, 1.3]})
         ax, res = axes[0, 0], axes[1, 0]
-        plot(ax, "physics", corner_t, phys[key], "physics at each corner").set_marker("o")
+        plot(ax, "physics", grid, phys_grid[key], "physics")
+        line = plot(ax, "physics", corner_t, phys[key], "physics at the corners")
+        line.set_linestyle("none")
+        line.set_marker("o")
         plot(ax, "card", grid, on_grid[key], f"the single fitted card in {sim}'s temperature equations")
         if log:
             ax.set_yscale("log")
@@ -122,11 +126,13 @@ def report(path, temperatures_c, *, dialect="ngspice", progress=None):
     fit_rows = [["parameter", "fitted value"]] + [[k, cards.format_number(v)] for k, v in run.fit.values.items()]
     err_rows = [["quantity", "worst error over the corners"]] + [[k, f"{100 * v:.3g} %"]
                                                                 for k, v in run.fit.worst_error.items()]
-    notes = [("warning", w) for w in run.warnings()] + [("note", line.strip()) for line in run.fit_lines()]
+    notes = [("warning", w.removeprefix("warning: ")) for w in run.warnings()]
+    notes.append(("note", " ".join(line.strip() for line in run.fit_lines())))
     return Report(kind="corners", title=f"{name}: temperature corners report", inputs=[str(path)], panels=figs,
                   tables=[Table("Fitted temperature parameters", fit_rows),
                           Table("Worst error of the single card", err_rows)],
                   notes=notes, card=text, card_title=f"The fitted card ({dialect} dialect)",
                   settings=f"dialect {dialect}; corners {', '.join(f'{t:g}' for t in temps)} degC",
-                  data=types.SimpleNamespace(run=run, card=card, physics=phys, grid=grid, on_grid=on_grid,
+                  data=types.SimpleNamespace(run=run, card=card, physics=phys, physics_grid=phys_grid, grid=grid,
+                                             on_grid=on_grid,
                                              at_corners=at_corners, corner_t=corner_t))
