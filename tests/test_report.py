@@ -346,6 +346,11 @@ def test_user_text_is_escaped(tmp_path):
     (lambda d: (d / "bad.toml").write_text("name = \"X\"\n[p]\ndoping = 1e17\n") and d / "bad.toml", "bad.toml"),
     (lambda d: (d / "junk.bin").write_bytes(b"\x00\x01") and d / "junk.bin", "junk.bin"),
     (lambda d: (d / "e.summary.json").write_text("{\"columns\": {}}") and d / "e.summary.json", "summary"),
+    (lambda d: (d / "lot.csv").write_text("name,area [um^2],p.doping [cm^-3],p.thickness [um],n.doping [cm^-3],"
+                                          "n.thickness [um]\nA,2500,5e19,0.8,2e16,4\nB,abc,5e19,0.8,2e16,4\n")
+     and d / "lot.csv", "lot.csv: line 3: area"),
+    (lambda d: (d / "t.summary.csv").write_text("name,line,IS,N\nA,2,1e-15,1\nB,3,1e-15\n") and d / "t.summary.csv",
+     "t.summary.csv: line 3"),
 ])
 def test_bad_input_is_one_line_and_writes_nothing(tmp_path, make, message):
     src = make(tmp_path)

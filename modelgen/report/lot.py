@@ -96,7 +96,9 @@ def _table(path):
     table = lots.read(path)
     errors = table.problems.errors()
     if errors:
-        raise InputError(f"{len(errors)} bad row(s); the first: {errors[0]}", file=path)
+        first = errors[0]
+        more = f" (and {len(errors) - 1} more problems; modelgen lots lists them all)" if len(errors) > 1 else ""
+        raise InputError(first.message + more, file=first.file or path, row=first.row, key=first.key)
     result, _ = lots.derive(table)
     cols = dict(lots.summary_columns(result))
     cols["leakage"] = np.asarray(result.derived["leakage"], float)
