@@ -1035,6 +1035,94 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
     sys.exit(EXIT_SKIPPED if errors else 0)
 
 
+@main.command("report")
+@click.argument("input_file", metavar="INPUT", type=click.Path())
+@click.option("-o", "--output", required=True, type=click.Path(),
+              help="The HTML file to write (atomically; one self-contained file: inline SVG, no network).")
+@click.option("--png", "png_dir", type=click.Path(), metavar="DIR",
+              help="Also write each figure as DIR/NAME.png (for slides); written with the page, all or none.")
+@click.option("--dialect", type=DIALECT, default="ngspice", show_default=True,
+              help="Whose card and whose simulator equations the report shows.")
+@click.option("--physics", type=click.Choice(["closed", "numeric"]), default="closed", show_default=True,
+              help="Device report: the card from the closed forms, or fitted to the numerical solver.")
+@click.option("--bias", "profile_bias", metavar="V",
+              help="Device report: junction voltage of the excess-carrier profile, with its unit (default 0.6 V, or "
+                   "3/4 of VJ where that is lower).")
+@click.option("--no-simulator", is_flag=True, help="Device report: do not run ngspice on the card.")
+@click.option("--corners", "corner_temps", metavar="TEMPS",
+              help="Corners report of the description: temperatures in degC, comma-separated "
+                   "(e.g. \"-40,27,85,125\"; at least two besides the nominal).")
+@click.option("--iv", "iv_file", type=click.Path(), metavar="IV.csv",
+              help="Calibration report of the description against this measured I-V (as modelgen calibrate).")
+@click.option("--cv", "cv_file", type=click.Path(), metavar="CV.csv",
+              help="Calibration report: the measured C-V.")
+@click.option("--free", metavar="KEYS", help="Calibration report: the keys to fit (as modelgen calibrate --free).")
+@click.option("--scatter", metavar="X,Y",
+              help="Lot report: the two figures of the scatter, e.g. \"VF@1mA,BV\" (summary columns or VF@<current>).")
+@click.option("--lot-corners", "corner_spec", metavar="SPEC", default="5,50,95", show_default=True,
+              help="Lot report: the corners marked on the scatter, as modelgen lots --corners.")
+def report_command(input_file, output, png_dir, dialect, physics, profile_bias, no_simulator, corner_temps, iv_file,
+                   cv_file, free, scatter, corner_spec):
+    """Draw a report of INPUT: one self-contained HTML page of figures and tables.
+
+    INPUT is recognised by its content: a device description (TOML) gives
+    the device report (forward and reverse I-V, C-V of the physics, the
+    solver, the card and ngspice's run of it; excess carriers; field; the
+    card); a lot table or the summary that modelgen lots writes gives the lot
+    report (histograms, a scatter with the corners, statistics). A
+    description with --corners gives the temperature corners report; with
+    --iv/--cv the calibration report. Progress goes to stderr.
+
+    \b
+    Examples:
+      modelgen report examples/switching_diode.toml -o switching.html --png figures
+      modelgen lots examples/lot_table.csv -o lot.lib && modelgen report lot.summary.json -o lot.html
+      modelgen report examples/switching_diode.toml --corners=-40,27,85,125 -o corners.html
+      modelgen report examples/measured/testchip.toml --iv examples/measured/testchip_iv.csv \\
+          --cv examples/measured/testchip_cv.csv -o calibration.html
+    """
+    import time
+
+    try:
+        from . import report
+        from .report import panels  # noqa: F401  (matplotlib: checked before any work)
+    except ImportError:
+        _fail("modelgen report needs matplotlib, which is not installed: install the 'report' extra "
+              "(pip install 'modelgen[report]')")
+    inputs = [f for f in (input_file, iv_file, cv_file) if f]
+    _check_output(output, inputs)
+    if png_dir is not None and not os.path.isdir(png_dir):
+        _fail(f"{png_dir}: --png needs an existing folder to write the figures to")
+    started = time.monotonic()
+
+    def progress(text):
+        if time.monotonic() - started > 1.0 or text.startswith("solving"):
+            click.echo(f"modelgen: report: {text}", err=True)
+
+    options = {"dialect": dialect, "physics": physics, "simulate": not no_simulator, "scatter": scatter,
+               "corner_spec": corner_spec, "free": free}
+    temps = None
+    try:
+        if profile_bias is not None:
+            from .units import parse_quantity
+
+            options["profile_bias"] = parse_quantity(profile_bias, "voltage", key="--bias")
+        if corner_temps is not None:
+            temps = []
+            for t in corner_temps.split(","):
+                try:
+                    temps.append(float(t))
+                except ValueError:
+                    raise InputError(f"{t.strip()!r} is not a temperature in degC", key="--corners") from None
+        made = report.build(input_file, corners=temps, iv=iv_file, cv=cv_file, progress=progress, **options)
+        progress("writing the page")
+        report.write(made, output, png_dir, inputs=inputs, signals=True)
+    except InputError as e:
+        _fail(str(e) if e.file else str(e.located(file=input_file)))
+    click.echo(f"modelgen: {made.kind} report written to {output}" + (f"; figures in {png_dir}" if png_dir else ""),
+               err=True)
+
+
 class _LotProgress:
     """A progress bar over the table's lines on stderr, for long runs on a terminal."""
 
