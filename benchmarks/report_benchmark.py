@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -38,7 +39,7 @@ def modelgen(*args):
 
 def timed(label, repeat, output, *args):
     times = [modelgen("report", *args, "-o", output) for _ in range(repeat)]
-    print(f"{label:<48} {min(times):6.2f} s (best of {repeat}; all: {', '.join(f'{t:.2f}' for t in times)})  "
+    print(f"{label:<48} {statistics.median(times):6.2f} s (median of {repeat}; all: {', '.join(f'{t:.2f}' for t in times)})  "
           f"{os.path.getsize(output) / 1024:8.1f} KiB")
 
 

@@ -1061,8 +1061,12 @@ def lots_command(table_file, output, sets, name_pattern, dialect, keep_going, su
               help="Lot report: the two figures of the scatter, e.g. \"VF@1mA,BV\" (summary columns or VF@<current>).")
 @click.option("--lot-corners", "corner_spec", metavar="SPEC", default="5,50,95", show_default=True,
               help="Lot report: the corners marked on the scatter, as modelgen lots --corners.")
+@click.option("--description", "description_file", type=click.Path(), metavar="DEVICE.toml",
+              help="Card file report: the description to compare the card with (default: the file its header "
+                   "names, else the card file's name with .toml, beside it).")
+@click.option("--section", metavar="NAME", help="Card file report: the .lib section of the card to show.")
 def report_command(input_file, output, png_dir, dialect, physics, profile_bias, no_simulator, corner_temps, iv_file,
-                   cv_file, free, scatter, corner_spec):
+                   cv_file, free, scatter, corner_spec, description_file, section):
     """Draw a report of INPUT: one self-contained HTML page of figures and tables.
 
     INPUT is recognised by its content: a device description (TOML) gives
@@ -1071,7 +1075,10 @@ def report_command(input_file, output, png_dir, dialect, physics, profile_bias, 
     card); a lot table or the summary that modelgen lots writes gives the lot
     report (histograms, a scatter with the corners, statistics). A
     description with --corners gives the temperature corners report; with
-    --iv/--cv the calibration report. Progress goes to stderr.
+    --iv/--cv the calibration report. A card file (a .model card or a
+    library) gives the device report of that card against the physics of
+    the description beside it (--description, --section). Progress goes to
+    stderr.
 
     \b
     Examples:
@@ -1080,6 +1087,7 @@ def report_command(input_file, output, png_dir, dialect, physics, profile_bias, 
       modelgen report examples/switching_diode.toml --corners=-40,27,85,125 -o corners.html
       modelgen report examples/measured/testchip.toml --iv examples/measured/testchip_iv.csv \\
           --cv examples/measured/testchip_cv.csv -o calibration.html
+      modelgen report corners.lib --description examples/switching_diode.toml --section vf_1ma_low -o low.html
     """
     import time
 
@@ -1089,7 +1097,7 @@ def report_command(input_file, output, png_dir, dialect, physics, profile_bias, 
     except ImportError:
         _fail("modelgen report needs matplotlib, which is not installed: install the 'report' extra "
               "(pip install 'modelgen[report]')")
-    inputs = [f for f in (input_file, iv_file, cv_file) if f]
+    inputs = [f for f in (input_file, iv_file, cv_file, description_file) if f]
     _check_output(output, inputs)
     if png_dir is not None and not os.path.isdir(png_dir):
         _fail(f"{png_dir}: --png needs an existing folder to write the figures to")
@@ -1100,7 +1108,7 @@ def report_command(input_file, output, png_dir, dialect, physics, profile_bias, 
             click.echo(f"modelgen: report: {text}", err=True)
 
     options = {"dialect": dialect, "physics": physics, "simulate": not no_simulator, "scatter": scatter,
-               "corner_spec": corner_spec, "free": free}
+               "corner_spec": corner_spec, "free": free, "description": description_file, "section": section}
     temps = None
     try:
         if profile_bias is not None:

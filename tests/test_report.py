@@ -417,3 +417,71 @@ def test_bias_and_png_options_are_checked_before_any_work(tmp_path):
         assert res.exit_code == 2, res.output
         assert len(res.output.strip().splitlines()) == 1 and message in res.output, res.output
         assert not out.exists()
+
+
+# --------------------------------------------------------------------------- a card file beside its description
+def test_card_file_report_draws_that_card_against_the_description(tmp_path):
+    # a hand-edited card (IS doubled) beside its description: the card curve is the evaluator of ngspice's
+    # equations on the edited numbers, the physics curve the description's, unchanged by the card
+    shutil.copy(EXAMPLES / "switching_diode.toml", tmp_path / "switching_diode.toml")
+    text = support.run("card", tmp_path / "switching_diode.toml", "--dialect", "ngspice", "-q").stdout
+    is_line = next(ln for ln in text.splitlines() if ln.startswith("+ IS="))
+    edited = text.replace(is_line, f"+ IS={2 * float(is_line.split('=')[1])!r}")
+    card_file = tmp_path / "edited.lib"
+    card_file.write_text(edited)
+    r = report.build(str(card_file), simulate=False)
+    try:
+        assert r.kind == "device" and r.inputs == [str(tmp_path / "switching_diode.toml"), str(card_file)]
+        check_page(r.html(), 5)
+        params = cards.reader.read_cards(edited)[0].params
+        (x, y), = series(r.panels[0].figure, "card")
+        assert np.array_equal(y, np.abs(evaluator.dc_current(dict(params), x, "ngspice", gmin=0.0)[0]))
+        derived = extraction.derive(description.load(str(tmp_path / "switching_diode.toml")))
+        (xp, yp), = series(r.panels[0].figure, "physics")
+        assert np.array_equal(yp, np.abs(calibration.terminal_current(derived, np.zeros(len(xp), int), xp)[0]))
+        assert "+ IS=" in r.card and "edited.lib" in r.settings
+        # its worst errors against the solver, in the table's first column, are numeric.errors_of of that card
+        errs = numeric.errors_of(dict(params), numeric.sweep(derived, 0), "ngspice")
+        table = r.panels[0].table
+        assert "card file edited.lib" in table[0][1]
+        assert [row[1] for row in table[1:]] == [f"{100 * v:.3g} %" for v in errs.values()]
+    finally:
+        r.close()
+
+
+def test_card_file_report_finds_or_asks_for_its_description_and_section(tmp_path):
+    lib = tmp_path / "corners.lib"
+    res = support.run("spread", EXAMPLES / "switching_diode.toml", "--samples", "2000", "--corner", "VF@1mA:low",
+                      "-o", lib)
+    assert res.exit_code == 0, res.output
+    out = tmp_path / "r.html"
+    # the header names switching_diode.toml, which is not beside the copy: one line asking for --description
+    res = support.run("report", lib, "-o", out, "--no-simulator")
+    assert res.exit_code == 2 and "--description" in res.output and not out.exists()
+    assert len(res.output.strip().splitlines()) == 1
+    # two sections define the card: one line asking for --section, before any solving
+    res = support.run("report", lib, "--description", EXAMPLES / "switching_diode.toml", "-o", out,
+                      "--no-simulator")
+    assert res.exit_code == 2 and "--section" in res.output and "vf_1ma_low" in res.output and not out.exists()
+    res = support.run("report", lib, "--description", EXAMPLES / "switching_diode.toml", "--section", "vf_1ma_low",
+                      "-o", out, "--no-simulator")
+    assert res.exit_code == 0, res.output
+    assert "corners.lib" in out.read_text()
+
+
+def test_a_scalable_card_file_is_drawn_at_the_description_geometry(tmp_path):
+    # the scalable subcircuit taken at the description's own area and perimeter is the per-device card
+    # (tests/test_scalable.py proves that in ngspice); so its drawn forward curve is the derived card's
+    shutil.copy(EXAMPLES / "switching_diode.toml", tmp_path / "switching_diode.toml")
+    lib = tmp_path / "scalable.lib"
+    assert support.run("card", tmp_path / "switching_diode.toml", "--scalable", "--form", "subckt", "-q", "-o",
+                       lib).exit_code == 0
+    r = report.build(str(lib), simulate=False)
+    try:
+        (x, y), = series(r.panels[0].figure, "card")
+        derived = extraction.derive(description.load(str(tmp_path / "switching_diode.toml")))
+        card = dict(cards.card_values(derived, 0, "ngspice")[0])
+        assert np.allclose(y, np.abs(evaluator.dc_current(card, x, "ngspice", gmin=0.0)[0]), rtol=1e-9, atol=0)
+        assert any("subcircuit" in text for _, text in r.notes)
+    finally:
+        r.close()

@@ -9,7 +9,9 @@ matplotlib with the Agg backend, imported only here) and the page
 - ``lot``: a lot summary (``.summary.json`` / ``.summary.csv`` of ``modelgen
   lots``) or a lot table (run through the lot's physics) - :mod:`modelgen.report.lot`;
 - ``corners``: a description with ``corners=`` temperatures - :mod:`modelgen.report.corners`;
-- ``calibration``: a description with measured ``iv``/``cv`` files - :mod:`modelgen.report.calibrated`.
+- ``calibration``: a description with measured ``iv``/``cv`` files - :mod:`modelgen.report.calibrated`;
+- a card file (a ``.model`` card or library) with a description beside it: the device report of that
+  card against the description's physics (:func:`description_for` finds the description).
 """
 
 from __future__ import annotations
@@ -77,8 +79,9 @@ def _head(path, size=4096):
 
 
 def detect(path):
-    """The report kind of the file at ``path``: 'device' or 'lot' (by content, not by name alone).
+    """The report kind of the file at ``path``: 'device', 'lot' or 'card' (by content, not by name alone).
 
+    A text with a SPICE ``.model``, ``.subckt`` or ``.lib`` line is a card file.
     A TOML file with ``[[device]]`` tables, a JSON list, a ``modelgen lots`` summary (JSON with ``columns``
     and ``statistics``, or CSV whose header starts ``name,line,IS,``) or any other CSV is a lot; a TOML
     description (a ``name`` and ``[p]``/``[n]`` tables) is a device. Anything else is an error.
@@ -87,6 +90,8 @@ def detect(path):
     text = head.lstrip()
     if not text:
         raise InputError("is empty: give a device description, a lot table or a lot summary", file=path)
+    if _spice(head):
+        return "card"
     if text.startswith("{"):
         return "lot"  # a lots summary (checked when read)
     if text.startswith("["):
@@ -115,6 +120,38 @@ def detect(path):
     raise InputError("is neither a device description (TOML) nor a lot table or summary (CSV, JSON)", file=path)
 
 
+_DOT_LINES = (".model", ".subckt", ".lib", ".include")
+
+
+def _spice(head):
+    """True when ``head`` (a file's first bytes) has a SPICE dot line: a card file, not TOML/CSV/JSON."""
+    return any(line.lstrip().lower().startswith(_DOT_LINES) for line in head.splitlines())
+
+
+def description_for(card_file, given=None):
+    """The description a card file's report compares it with: ``given``, else the file its card header
+    names (``* NAME: from FILE`` or ``* NAME: scalable, from FILE``, beside the card file), else
+    ``STEM.toml`` beside it.
+
+    InputError naming the card file when there is none.
+    """
+    if given is not None:
+        return given
+    folder = os.path.dirname(str(card_file))
+    for line in _head(card_file, 65536).splitlines():
+        s = line.strip()
+        if s.startswith("*") and " from " in s and ".toml" in s:  # '* NAME: from FILE', '* NAME: scalable, from FILE'
+            named = s.rsplit(" from ", 1)[1].strip()
+            candidate = os.path.join(folder, os.path.basename(named))
+            if named.lower().endswith(".toml") and os.path.isfile(candidate):
+                return candidate
+    stem = os.path.splitext(str(card_file))[0] + ".toml"
+    if os.path.isfile(stem):
+        return stem
+    raise InputError("is a card file, and no description is beside it (neither the file its header names nor "
+                     f"{os.path.basename(stem)}): give --description FILE", file=card_file)
+
+
 def build(path, *, corners=None, iv=None, cv=None, progress=None, **options):
     """The report for ``path``: a calibration with ``iv``/``cv``, corners with ``corners``, else by content.
 
@@ -129,7 +166,8 @@ def build(path, *, corners=None, iv=None, cv=None, progress=None, **options):
         Called with a short text before each long step.
     options
         Passed to the kind's builder (``dialect``, ``physics``, ``profile_bias``, ``simulate``,
-        ``scatter``, ``corner_spec``, ``free``).
+        ``scatter``, ``corner_spec``, ``free``); for a card file ``description`` (default: see
+        :func:`description_for`) and ``section``.
 
     Raises
     ------
@@ -137,6 +175,16 @@ def build(path, *, corners=None, iv=None, cv=None, progress=None, **options):
         Bad input, naming the file (and row and key where there is one).
     """
     kind = detect(path)
+    if kind == "card":
+        if iv or cv or corners:
+            raise InputError("--iv, --cv and --corners take a device description, not a card file", file=path)
+        from .device import report as make
+
+        described = description_for(path, options.get("description"))
+        if detect(described) != "device":
+            raise InputError("is not a device description", file=described)
+        return make(described, progress=progress, card_file=path,
+                    **_pick(options, "dialect", "profile_bias", "simulate", "section"))
     if (iv or cv) and corners:
         raise InputError("give measured data (--iv/--cv) or --corners, not both", key="--corners")
     if iv or cv or corners:

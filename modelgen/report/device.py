@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 
 from .. import calibration, cards, description, extraction, numeric, structures, targets
@@ -35,8 +37,39 @@ def _card_of(result, dialect, fitted):
     return dict(cards.card_values(result, 0, dialect, fitted.params if fitted else None)[0])
 
 
+def card_from_file(card_file, name, section=None, instance=None):
+    """The diode card of ``card_file`` a device report shows: ``(Card, its text, dialect from the header or None)``.
+
+    The card named ``name`` (the description's), or the file's only diode card; in a library with sections,
+    the one in ``section``. A scalable card (a ``.model`` or a subcircuit) is taken at ``instance`` =
+    (bottom area [m^2], perimeter [m]), the description's geometry
+    (:func:`modelgen.spice.check.diode_cards`). InputError (naming the file) when none or several fit.
+    """
+    from ..cards import reader
+    from ..spice import check
+
+    text = reader.read_limited(card_file)
+    found = check.diode_cards(text, file=card_file, instance=instance)  # InputError naming file, line and key
+    named = [c for c in found if c.name.lower() == name.lower()] or (found if len(found) == 1 else [])
+    if section is not None:
+        named = [c for c in named if (c.section or "").lower() == section.lower()]
+    if len(named) != 1:
+        have = ", ".join(f"{c.name}" + (f" (section {c.section})" if c.section else "") for c in found[:8])
+        why = "several diode cards" if len(named) > 1 else "no diode card"
+        hint = "give --section" if len(named) > 1 else "name the card as the description does"
+        raise InputError(f"{why} named {name} to report{' in section ' + section if section else ''}; "
+                         f"the file has: {have}; {hint}", file=card_file)
+    card = named[0]
+    lines = reader.split_lines(text)
+    end = card.line
+    while end < len(lines) and lines[end].lstrip().startswith("+"):
+        end += 1
+    headers = [d for n, d in check.dialect_headers(text) if n < card.line]
+    return card, "\n".join(lines[card.line - 1:end]) + "\n", (headers[-1] if headers else None)
+
+
 def compute(path, *, dialect="ngspice", physics="closed", window=None, profile_bias=None,
-            simulate=True, progress=None):
+            simulate=True, progress=None, card_file=None, section=None):
     """Everything the device report plots, for the description at ``path``.
 
     Parameters
@@ -55,6 +88,10 @@ def compute(path, *, dialect="ngspice", physics="closed", window=None, profile_b
         :data:`PROFILE_SHARE` of VJ where that is lower.
     simulate : bool
         Run ngspice on the card when it is installed.
+    card_file, section : str, optional
+        Show this card file's card (:func:`card_from_file`) instead of the one derived from the
+        description: the report then compares a given card (hand-edited, fitted elsewhere, from an older
+        run) with the physics of the description; its dialect is the one its header names, else ``dialect``.
 
     Returns
     -------
@@ -84,6 +121,8 @@ def compute(path, *, dialect="ngspice", physics="closed", window=None, profile_b
     if not 0.0 < dev.profile_bias < vj:
         raise InputError(f"the excess-carrier profile's junction voltage must lie between 0 V and the junction "
                          f"potential VJ = {vj:.4g} V, got {dev.profile_bias:g} V", key="--bias")
+    geometry = (float(result.derived["bottom_area"][0]), float(result.device.perimeter[0]))
+    given = card_from_file(card_file, dev.name, section, geometry) if card_file is not None else None  # first
     numeric_path = physics == "numeric" or not bool(structures.closed_form_holds(result)[0])
     note("solving the device with the drift-diffusion solver")
     from ..physics.driftdiffusion import SolverError
@@ -100,7 +139,26 @@ def compute(path, *, dialect="ngspice", physics="closed", window=None, profile_b
     fitted = dev.fitted if numeric_path else None
     dev.card_physics = "fitted to the solver" if fitted else "closed forms"
     dev.card = _card_of(result, dialect, fitted)
-    if fitted:
+    dev.card_parsed = None
+    dev.card_notes = []
+    if given is not None:
+        card, text, named = given
+        if named and named != dialect:
+            dialect = dev.dialect = named
+            sim = dev.simulator = targets.get(dialect).equations
+        dev.card_parsed = card
+        dev.card = dict(card.params)
+        dev.card_text = text
+        dev.card_physics = f"card file {os.path.basename(str(card_file))}"
+        tnom = card.params.get("TNOM")
+        if tnom is not None and abs(tnom + ZERO_CELSIUS - dev.temperature) > 0.01:
+            dev.card_notes.append(("warning", f"the card's TNOM ({tnom:g} degC) is not the description's "
+                                   f"temperature ({dev.temperature - ZERO_CELSIUS:g} degC): the card is drawn at "
+                                   "its TNOM, the physics at the description's temperature"))
+        if card.source is not None or card.scaling is not None or card.wrapper:
+            dev.card_notes.append(("note", "the card's subcircuit (its generation source or scaling) is not drawn: "
+                                   "the diode card alone, as its instance sees it"))
+    elif fitted:
         dev.card_text = cards.card(numeric.card_result(result, 0, fitted), 0, dialect=dialect, inputs=raw,
                                    overrides=fitted.params, extra=list(numeric.header_lines(dev.sweep, fitted)))
     else:
@@ -152,7 +210,8 @@ def _ngspice(dev, top):
         return None, f"ngspice not run: the {dev.dialect} dialect is not meant for it"
     if not ngspice.available():
         return None, "ngspice not installed (Debian package: ngspice): no simulator curve"
-    parsed = [c for c in reader.read_cards(dev.card_text) if c.type == "D"]
+    parsed = [dev.card_parsed] if dev.card_parsed is not None else [c for c in reader.read_cards(dev.card_text)
+                                                                     if c.type == "D"]
     library, labels = check.deck_cards(parsed)
     stop = SIMULATOR_STEP * np.ceil(top / SIMULATOR_STEP)
     start = SIMULATOR_STEP * np.floor(dev.window.reverse_bias / SIMULATOR_STEP)
@@ -206,12 +265,14 @@ def _forward_panel(dev):
     legend(ax, loc="lower right")
     order = [r for r in (*numeric.FORWARD_REGIONS, "reverse", "capacitance") if r in dev.errors["card"]]
     shown = " (shown)"
-    fitted = dev.card_physics != "closed forms"
-    table = [["region", "closed-form card" + ("" if fitted else shown),
-              "card fitted to the solver" + (shown if fitted else "")]]
+    fitted = dev.card_physics == "fitted to the solver"
+    given = dev.card_parsed is not None  # a card file's card: its own column first
+    table = [["region"] + ([f"{dev.card_physics}{shown}"] if given else [])
+             + ["closed-form card" + ("" if fitted or given else shown),
+                "card fitted to the solver" + (shown if fitted else "")]]
+    columns = ([dev.errors["card"]] if given else []) + [dev.errors["closed"], dev.errors["fitted"]]
     for r in order:
-        table.append([r] + [f"{100 * e[r]:.3g} %" if r in e else "" for e in (dev.errors["closed"],
-                                                                             dev.errors["fitted"])])
+        table.append([r] + [f"{100 * e[r]:.3g} %" if r in e else "" for e in columns])
     if len(table) == 1:
         table.append(["(no solver points)", "the solver did not run: " + (dev.solver_error or "n/a"), ""])
     caption = ("Worst error against the numerical solver inside the fit window (shaded), |I_card / I_solver - 1|, "
@@ -376,18 +437,21 @@ def notes_of(dev):
     """The findings of the description and of the fit (severity, text)."""
     out = [(m.severity, m.text) for m in dev.result.findings_for(0)]
     if dev.fitted is not None:
-        out += [(m.severity, m.text) for m in dev.fitted.findings if dev.card_physics != "closed forms"]
+        out += [(m.severity, m.text) for m in dev.fitted.findings if dev.card_physics == "fitted to the solver"]
     if dev.solver_error:
         out.append(("warning", f"the numerical solver failed: {dev.solver_error}"))
-    return out
+    return out + list(getattr(dev, "card_notes", []))
 
 
-def report(path, *, dialect="ngspice", physics="closed", profile_bias=None, simulate=True, progress=None):
-    """The device report of the description at ``path`` (a :class:`modelgen.report.Report`)."""
+def report(path, *, dialect="ngspice", physics="closed", profile_bias=None, simulate=True, progress=None,
+           card_file=None, section=None):
+    """The device report of the description at ``path`` (a :class:`modelgen.report.Report`); with
+    ``card_file``, of that file's card against the description's physics (:func:`compute`)."""
     from . import Report
 
     dev = compute(path, dialect=dialect, physics=physics, profile_bias=profile_bias, simulate=simulate,
-                  progress=progress)
+                  progress=progress, card_file=card_file, section=section)
+    dialect = dev.dialect
     if progress:
         progress("drawing the figures")
     w = dev.window
@@ -395,7 +459,8 @@ def report(path, *, dialect="ngspice", physics="closed", profile_bias=None, simu
     settings = (f"dialect {dialect}; card from the {dev.card_physics}; fit window {low}"
                 f" to {_si(w.current_high, 'A')}, reverse {w.reverse_bias:g} V, C-V {w.capacitance_low:g} to "
                 f"{w.capacitance_high:g} V; excess carriers at {dev.profile_bias:g} V")
-    return Report(kind="device", title=f"{dev.name}: device report", inputs=[str(path)], panels=panels_of(dev),
+    inputs = [str(path)] + ([str(card_file)] if card_file is not None else [])
+    return Report(kind="device", title=f"{dev.name}: device report", inputs=inputs, panels=panels_of(dev),
                   notes=notes_of(dev), card=dev.card_text, card_title=f"The card ({dialect} dialect)",
                   settings=settings, data=dev)
 

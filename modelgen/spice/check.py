@@ -518,12 +518,13 @@ def _scalable_lines(text):
             if line.lstrip().startswith("*") and ": scalable diode model card, modelgen " in line]
 
 
-def diode_cards(text, file=None):
+def diode_cards(text, file=None, instance=None):
     """The diode cards of ``text``, validated (:func:`validate`); InputError when there is none.
 
     A card under a scalable card's header is taken as the instance :data:`SCALABLE_REFERENCE` sees it
     (:func:`at_instance`): what runs in the simulator and the evaluator is that 100 x 100 um diode. The
     diode of a scalable subcircuit is taken as its default instance sees it (:func:`at_subckt_instance`).
+    ``instance`` = (bottom area [m^2], perimeter [m]) takes both kinds at that instance instead.
     A statistical library (known by its header) gives one card per point it is checked at: every
     process variable 0, then each global one at +1 (:func:`modelgen.statistical.read_library`).
     """
@@ -543,8 +544,9 @@ def diode_cards(text, file=None):
         for k, c in enumerate(cards):
             j = bisect.bisect_left(headers, c.line) - 1
             if j >= 0 and headers[j] in scalable:
-                cards[k] = replace(c, params=at_instance(c.params, *SCALABLE_REFERENCE))
-    cards = [replace(c, params=at_subckt_instance(c.params, c.scaling)) if c.scaling else c for c in cards]
+                cards[k] = replace(c, params=at_instance(c.params, *(instance or SCALABLE_REFERENCE)))
+    at = {} if instance is None else {"area": instance[0], "pj": instance[1]}
+    cards = [replace(c, params=at_subckt_instance(c.params, c.scaling | at)) if c.scaling else c for c in cards]
     for c in cards:
         validate(c, file)
     return cards
