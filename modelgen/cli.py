@@ -462,6 +462,8 @@ def spread_command(device_file, samples, seed, figures, kind, fmt, output, corne
 
         if corner_specs:
             _fail("--statistical and --corner write different libraries: give one of them")
+        if figures or form:
+            _fail("--figure and --form do not apply to --statistical (its header states VF@1mA and C@-1V)")
         dialect = dialect or "ngspice"
         try:
             device, tolerances, _ = spread.load(device_file)

@@ -460,7 +460,7 @@ def read_library(text, file=None):
     ``.model`` whose values are numbers or :class:`Expression` texts); any
     other line than comments is refused. Returns one
     :class:`~modelgen.cards.reader.Card` per point: all variables 0
-    (section ``nominal``), then each global variable at +1 (section
+    (section ``nominal``), then each variable, global or local, at +1 (section
     ``VARIABLE+1``), each with its ``params`` evaluated here and its
     ``expressions`` (name -> Expression) and ``variables`` (names and values)
     for the simulator to evaluate itself.
@@ -548,11 +548,10 @@ def read_library(text, file=None):
     if model is None or wrapper:
         raise reader.CardSyntaxError("statistical library: no complete .subckt with its .model", file=file)
     points = [("nominal", np.zeros(len(variables_)))]
-    for j, name in enumerate(variables_):
-        if kinds[name] == "global":
-            x = np.zeros(len(variables_))
-            x[j] = 1.0
-            points.append((f"{name}+1", x))
+    for j, name in enumerate(variables_):  # every variable, global and local, at +1 on its own
+        x = np.zeros(len(variables_))
+        x[j] = 1.0
+        points.append((f"{name}+1", x))
     cards = []
     for section, x in points:
         values = {k: float(e.evaluate(x[None, :])[0]) for k, e in params.items()}

@@ -206,22 +206,24 @@ def test_parameters_that_do_not_vary_stay_numbers_and_forms_are_stated():
 
 
 def test_modelgen_check_passes_on_the_library(tmp_path):
-    """modelgen check runs the library in ngspice at nominal and at +1 sigma of each global variable (the
-    variable's .param overridden, the expressions evaluated by ngspice) against modelgen's evaluator."""
+    """modelgen check runs the library in ngspice at nominal and at +1 sigma of each variable, global and
+    local (the variable's .param overridden, the expressions evaluated by ngspice) against modelgen's
+    evaluator."""
     need("ngspice")
     library = _library(tmp_path, README_DEVICE)
     res = run("check", library)
     assert res.exit_code == 0, res.output
     device, tolerances, _ = spread.load(README_DEVICE)
-    globals_ = [v.name for v in statistical.variables(device, tolerances) if v.shared == "global"]
-    assert "nominal" in res.output and all(f"{g}+1" in res.output for g in globals_)
-    assert f"{1 + len(globals_)} of {1 + len(globals_)} checks passed" in res.output
+    names = [v.name for v in statistical.variables(device, tolerances)]
+    assert any(v.shared == "local" for v in statistical.variables(device, tolerances))
+    assert "nominal" in res.output and all(f"{g}+1" in res.output for g in names)
+    assert f"{1 + len(names)} of {1 + len(names)} checks passed" in res.output
 
 
 def test_check_sees_when_ngspice_evaluates_another_point_than_modelgen(tmp_path):
     """The check has the power to see a variable override that does not take: each +1 point of the README
-    library, given the nominal point's numbers on modelgen's side, fails in ngspice (each global variable
-    moves the card by more than the check's 0.1 % tolerance)."""
+    library, given the nominal point's numbers on modelgen's side, fails in ngspice (each variable moves the
+    card by more than the check's 0.1 % tolerance)."""
     need("ngspice")
     from dataclasses import replace
 
@@ -286,3 +288,10 @@ def test_a_step_outside_a_keys_range_is_refused_in_one_line(tmp_path):
     res = run("spread", path, "--statistical")
     assert res.exit_code == 2 and "spread.n.thickness" in res.output and "one sigma" in res.output
     assert len(res.output.strip().splitlines()) == 1
+
+
+@pytest.mark.parametrize("args", [("--figure", "VF@1mA"), ("--form", "subckt"), ("--corner", "VF@1mA:low")])
+def test_options_of_other_outputs_are_refused_with_statistical(args):
+    # an option that would be silently ignored is refused instead (common practice for command lines)
+    res = run("spread", README_DEVICE, "--statistical", *args)
+    assert res.exit_code == 2 and len(res.output.strip().splitlines()) == 1 and args[0] in res.output

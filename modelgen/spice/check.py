@@ -10,8 +10,8 @@ for a card inside a ``.subckt`` with modelgen's generation source
 (-1 and -5 V) where the simulator runs behavioural sources, at
 one temperature: the card's TNOM, or the temperature asked for. A
 statistical library (:mod:`modelgen.statistical`, known by its header) is
-checked at points: every process variable 0, then each global variable at
-+1, the deck giving ngspice the variables as ``.param`` values and the
+checked at points: every process variable 0, then each variable (global or
+local) at +1, the deck giving ngspice the variables as ``.param`` values and the
 parameters as the library's expressions of them, for ngspice to evaluate. modelgen's
 evaluator (:mod:`modelgen.spice.evaluator`) computes the same points from
 the same parameters with that simulator's equations and constants, at the
@@ -526,7 +526,7 @@ def diode_cards(text, file=None, instance=None):
     diode of a scalable subcircuit is taken as its default instance sees it (:func:`at_subckt_instance`).
     ``instance`` = (bottom area [m^2], perimeter [m]) takes both kinds at that instance instead.
     A statistical library (known by its header) gives one card per point it is checked at: every
-    process variable 0, then each global one at +1 (:func:`modelgen.statistical.read_library`).
+    process variable 0, then each one, global or local, at +1 (:func:`modelgen.statistical.read_library`).
     """
     from dataclasses import replace
 
