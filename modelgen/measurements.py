@@ -21,7 +21,10 @@ the group is an error.
 Sweeps
     A sweep is a run of consecutive points with the same group, temperature,
     area and perimeter. Within a sweep the bias must be strictly monotonic
-    (either way); a sweep needs at least :data:`MIN_POINTS` points.
+    (either way); a sweep needs at least :data:`MIN_POINTS` points. A logged
+    temperature that wanders (a chuck's regulation) is one temperature while
+    each point stays within :data:`TEMPERATURE_TOLERANCE` of the one before:
+    such a run is taken at its median temperature, and a note says so.
 
 Compliance (I-V)
     Stated (``compliance`` [A]): every point with ``|I|`` within
@@ -73,6 +76,9 @@ from .units import MAX_UNIT, apply_factor, unit_factor
 READ_LIMIT = 16 * 2**20
 #: Fewest points a sweep needs, and fewest usable points a file needs.
 MIN_POINTS = 3
+#: Consecutive logged temperatures this close [K] belong to one sweep (a chuck's regulation, common practice:
+#: hot chucks hold +-0.1 to +-0.5 K); the sweep is then taken at its median.
+TEMPERATURE_TOLERANCE = 0.5
 #: Relative closeness of currents taken as one compliance level (0.1 %).
 COMPLIANCE_TOLERANCE = 1e-3
 #: Points of a sweep whose |I| is not above this many times the found floor level are left out.
@@ -397,6 +403,7 @@ def read_curve(path, kind, *, group=None, floor=None, compliance=None):
     curve = Curve(kind=kind, file=file, v=v, y=y, line=lines, temperature=temperature, area=area,
                   perimeter=perimeter, group=grp, use=np.ones(n, bool),
                   notes=[f"{file}: column {shown(u)} not used" for u in unused])
+    _settle_temperature(curve)
     sweeps = curve.sweeps()
     for idx in sweeps:
         _check_sweep(curve, idx, roles["v"][0])
@@ -409,6 +416,25 @@ def read_curve(path, kind, *, group=None, floor=None, compliance=None):
                          + ("; " + "; ".join(n.split(": ", 1)[1] for n in curve.notes) if curve.notes else ""),
                          file=file, row=int(lines[0]), key=roles["y"][0])
     return curve
+
+
+def _settle_temperature(curve):
+    """Runs of one group and geometry whose logged temperature moves by at most TEMPERATURE_TOLERANCE from
+    point to point are one sweep: their temperatures become the run's median (in place, with a note)."""
+    t = curve.temperature
+    if len(t) < 2 or not np.isfinite(t).any():
+        return
+    with np.errstate(invalid="ignore"):
+        close = np.abs(np.diff(t)) <= TEMPERATURE_TOLERANCE
+    same = close & _same(curve.group) & _same(curve.area) & _same(curve.perimeter)
+    starts = np.concatenate([[0], np.flatnonzero(~same) + 1, [len(t)]])
+    for a, b in pairwise(starts):  # over runs (sweeps), not points
+        run = t[a:b]
+        if b - a > 1 and np.all(np.isfinite(run)) and run.max() > run.min():
+            t[a:b] = np.median(run)
+            curve.notes.append(f"{curve.file}: lines {_line_ranges(curve.line[a:b])}: the temperature varies by "
+                               f"{run.max() - run.min():.3g} K within the sweep (each step at most "
+                               f"{TEMPERATURE_TOLERANCE:g} K); taken as its median, {t[a] - 273.15:.4g} degC")
 
 
 def _check_sweep(curve, idx, vname):

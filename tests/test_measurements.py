@@ -290,3 +290,27 @@ def test_reading_is_deterministic():
     for name in ("v", "y", "line", "temperature", "area", "perimeter", "use"):
         assert np.array_equal(getattr(a, name), getattr(b, name), equal_nan=True)
     assert a.notes == b.notes and a.group.tolist() == b.group.tolist()
+
+
+# ------------------------------------------------------------------------------------- temperature jitter
+
+def test_a_wandering_chuck_temperature_is_one_sweep_at_its_median(tmp_path):
+    # a logged temperature that moves by 0.1-0.3 K from point to point is one sweep (a chuck's regulation;
+    # common practice), taken at its median; a step of 2 K starts a new sweep. Celsius to kelvin: +273.15 (BIPM)
+    jitter = [27.1, 26.9, 27.2, 27.0, 26.8]
+    rows = "".join(f"{0.1 * (k + 1)!r}, {1e-9 * 10 ** k!r}, {t!r}\n" for k, t in enumerate(jitter))
+    rows += "".join(f"{0.1 * (k + 1)!r}, {2e-9 * 10 ** k!r}, {t!r}\n" for k, t in enumerate([85.0, 85.1, 84.9]))
+    c = read_curve(write(tmp_path, "V [V], I [A], T [degC]\n" + rows), "iv", floor=1e-12)
+    sweeps = c.sweeps()
+    assert [len(s) for s in sweeps] == [5, 3]
+    assert c.temperature[:5] == pytest.approx([27.0 + 273.15] * 5, abs=1e-9)
+    assert c.temperature[5:] == pytest.approx([85.0 + 273.15] * 3, abs=1e-9)
+    assert sum("taken as its median" in n for n in c.notes) == 2
+
+
+def test_a_temperature_step_beyond_the_tolerance_splits_the_sweep(tmp_path):
+    rows = "".join(f"{0.1 * (k + 1)!r}, {1e-9 * 10 ** k!r}, {t!r}\n" for k, t in enumerate([27.0, 27.0, 27.0]))
+    rows += "".join(f"{0.1 * (k + 1)!r}, {1e-9 * 10 ** k!r}, {t!r}\n" for k, t in enumerate([28.0, 28.0, 28.0]))
+    c = read_curve(write(tmp_path, "V [V], I [A], T [degC]\n" + rows), "iv", floor=1e-12)
+    assert [len(s) for s in c.sweeps()] == [3, 3]
+    assert not any("median" in n for n in c.notes)
