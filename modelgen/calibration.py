@@ -760,6 +760,24 @@ def _quantity(si, unit, kind):
     return f'"{(si - offset) / scale:.6g} {unit}"'
 
 
+def _inline_comment(value_text):
+    """The comment after a TOML value on its line (``  # ...``), or "": the first # outside quotes."""
+    quote, k = None, 0
+    while k < len(value_text):
+        ch = value_text[k]
+        if quote:
+            if ch == "\\" and quote == '"':
+                k += 1  # an escaped character of a basic string
+            elif ch == quote:
+                quote = None
+        elif ch in "\"'":
+            quote = ch
+        elif ch == "#":
+            return "  " + value_text[k:].rstrip()
+        k += 1
+    return ""
+
+
 def _rewrite(original, cal, files):
     lines = original.splitlines()
     table = None
@@ -784,7 +802,7 @@ def _rewrite(original, cal, files):
             comment = f"# calibrated: standard error {fit['stderr']:.2g}"
             if spot is not None:
                 lead = lines[spot[0]][:len(lines[spot[0]]) - len(lines[spot[0]].lstrip())]
-                edits[spot[0]] = [lead + comment, lead + text]
+                edits[spot[0]] = [lead + comment, lead + text + _inline_comment(spot[1])]
             else:
                 at = first_head if first_head is not None else len(lines)
                 inserts.setdefault(at, []).extend([comment, text])
@@ -807,7 +825,7 @@ def _rewrite(original, cal, files):
             lead = lines[i][:len(lines[i]) - len(lines[i].lstrip())]
             if "." in key and not (key.split(".")[0] in heads and heads[key.split(".")[0]] < i):
                 text = f"{key} = {_quantity(fit['value'], unit, kind)}"  # a dotted key at the top level
-            edits[i] = [lead + comment, lead + text]
+            edits[i] = [lead + comment, lead + text + _inline_comment(target[1])]  # the user's comment kept
         elif "." in key:
             side = key.split(".")[0]
             if side not in heads:

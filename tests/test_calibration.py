@@ -200,6 +200,8 @@ def test_written_description_reloads_with_the_fitted_values(solved, tmp_path):
     assert dev.contact_resistance[0] == pytest.approx(cal.fitted["contact_resistance"]["value"], rel=1e-5)
     assert dev.recombination_lifetime[0] == pytest.approx(cal.fitted["recombination_lifetime"]["value"], rel=1e-5)
     assert 'doping = "' in text and "cm^-3" in text  # the original's unit kept
+    # the user's inline comment stays on the line it was on
+    assert any(ln.startswith('doping = "') and ln.endswith("# the light side") for ln in text.splitlines())
     assert dev.p.doping[0] == pytest.approx(1e24)  # untouched keys as written
 
 
