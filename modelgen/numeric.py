@@ -270,14 +270,21 @@ def _voltage_at(card, current, cap, simulator="ngspice"):
     return hi
 
 
+#: The equilibrium field, as a share of its peak, below which a node counts as outside the depletion region
+#: (a graded neutral region's built-in field, Vt / L for a doping that changes over L, stays below it).
+EDGE_FIELD = 0.1
+
+
 def _lighter_edge_injection(sol, structure):
     """Minority density over doping at the lighter side's depletion edge, per bias [-].
 
     Each side's doping is its net doping at its equilibrium depletion edge:
     the first node, walking from the junction outwards, where the majority
-    density is within a factor two of the net doping (so that a graded
-    profile's compensated nodes at the junction, and a contact layer beyond
-    a lightly doped region, do not count). The lighter side is the side with
+    density is within a factor two of the net doping and the equilibrium
+    field has fallen below :data:`EDGE_FIELD` of its peak (so that a graded
+    profile's compensated nodes at the junction, where the majority density
+    can match a tiny net doping inside the depletion region, and a contact
+    layer beyond a lightly doped region, do not count). The lighter side is the side with
     the smaller; at each bias its depletion edge is the first node outwards
     where the majority density is at least half the net doping and the net
     doping at least half the side's (the solver's own split of depletion and
@@ -287,10 +294,13 @@ def _lighter_edge_injection(sol, structure):
     c = structure.profile(m.x)
     k = m.junction
     eq_n, eq_p = np.exp(m.equilibrium[:, 1]) * m.c0, np.exp(m.equilibrium[:, 2]) * m.c0
+    field = np.abs(np.diff(m.equilibrium[:, 0]) / np.diff(m.x))  # |E| / Vt on the edges
+    at_node = np.concatenate([field[:1], np.maximum(field[:-1], field[1:]), field[-1:]])
+    outside = at_node < EDGE_FIELD * field.max()
     sides = []
     for nodes, major_eq, sign in ((np.arange(k, -1, -1), eq_p, -1.0), (np.arange(k, len(c)), eq_n, 1.0)):
         dop = sign * c[nodes]
-        edge = (dop > 0) & (major_eq[nodes] >= 0.5 * dop) & (major_eq[nodes] <= 2.0 * dop)
+        edge = (dop > 0) & (major_eq[nodes] >= 0.5 * dop) & (major_eq[nodes] <= 2.0 * dop) & outside[nodes]
         sides.append((nodes, dop, float(dop[np.argmax(edge)]) if edge.any() else np.inf))
     (nodes, dop, doping), lighter_p = min(sides[0], sides[1], key=lambda t: t[2]), sides[0][2] <= sides[1][2]
     major, minor = (sol.p, sol.n) if lighter_p else (sol.n, sol.p)

@@ -138,6 +138,19 @@ def test_regions_have_their_published_ideality(fitted):
         assert hi[0] < 1.3 and hi.max() > 1.6, name
 
 
+def test_graded_profiles_enter_high_injection_only_where_the_law_of_the_junction_says(fitted):
+    # the implanted anode's lighter side is its 5e15 cm^-3 epi; by the law of the junction (Shockley 1949;
+    # Sze & Ng 2007, ch. 2) the hole density at its edge is ni^2 exp(V/Vt) / N_D, with ni about 1e10 cm^-3
+    # at 300 K (Sze & Ng, appendix): below 0.45 V that is under 1e-3 of the doping, so no point there is high
+    # injection (the labels once took a compensated node inside the depletion region for the side's doping)
+    _, sw, _ = fitted["implanted_anode.toml"]
+    v, region = np.asarray(sw.forward_bias), np.asarray(sw.region)
+    vt = sc.k * 300.15 / sc.e
+    assert np.all(1e20 * np.exp(v[v < 0.45] / vt) / 5e15 ** 2 < 1e-3)  # p / N_D
+    assert not np.any(region[v < 0.45] == "high injection"), list(zip(v, region))
+    assert np.any(region == "high injection")  # and the flooded epi near the top is still seen
+
+
 def test_photodiode_leakage_is_the_depletion_generation(fitted):
     """The reverse current at -5 V is the depletion region's generation, at most q ni W A / (2 tau)
     with W of the depletion approximation (Sah, Noyce & Shockley 1957; Sze & Ng 2007, ch. 2); the
