@@ -50,7 +50,8 @@ def structure_for(result, i):
     (the closed forms' own parameters). Erfc, gaussian and table rows: the true
     profile through :func:`~modelgen.physics.driftdiffusion.structure_from_profile`
     with node-wise material models, the junction area (bottom plus sidewall),
-    the temperature, the contact recombination velocities and, where either side's
+    the temperature, the closed forms' intrinsic density (so ``material.ni`` and
+    ``material.bandgap`` hold), a side's given mobilities, the contact recombination velocities and, where either side's
     lifetime or diffusion length was given, both sides' lifetimes as the
     Result has them (taken as SRH lifetimes: the solver adds Auger itself);
     where neither was given, the material's doping-dependent lifetime at each point.
@@ -80,7 +81,9 @@ def structure_for(result, i):
     given = [not (np.isnan(getattr(one, s).lifetime[0]) and np.isnan(getattr(one, s).diffusion_length[0]))
              for s in ("p", "n")]
     lifetimes = (float(p["lifetime"][i]), float(n["lifetime"][i])) if any(given) else None
+    mobilities = {(s, role): float(getattr(getattr(one, s), f"{role}_mobility")[0])
+                  for s in ("p", "n") for role in ("minority", "majority")}
     return _solver().structure_from_profile(
         prof, float(d["junction_area"][i]), temperature=float(d["temperature"][i]), lifetimes=lifetimes,
         velocities=(float(p["contact_velocity"][i]), float(n["contact_velocity"][i])), material=mat,
-        relative_permittivity=float(dev.relative_permittivity[i]))
+        relative_permittivity=float(dev.relative_permittivity[i]), ni=float(d["ni"][i]), mobilities=mobilities)

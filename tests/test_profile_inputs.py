@@ -343,3 +343,37 @@ def test_profile_rows_give_the_same_numbers_alone_and_in_a_table():
         alone = extraction.derive(d)
         for k in extraction.PARAMETERS:
             assert np.array_equal(alone.params[k], together.params[k][i:i + 1], equal_nan=True), (i, k)
+
+
+def _table_mapping(**more):
+    import tomllib
+
+    table = tomllib.loads(TABLE.read_text())
+    table["profile_table"] = str(TABLE.parent / table["profile_table"])
+    table.update(more)
+    return table
+
+
+def test_a_profile_row_takes_the_descriptions_intrinsic_density_and_mobilities():
+    # the solver of a tabulated profile once ignored material.ni and a side's given mobility. With ni doubled
+    # the forward current must grow between 2x (depletion-region recombination, proportional to ni: Sah,
+    # Noyce & Shockley 1957) and 4x (diffusion, proportional to ni^2: Shockley 1949), nearer 4x as the
+    # bias rises and diffusion takes over
+    from modelgen.physics import driftdiffusion as dd
+
+    base = extraction.derive(description.from_mapping(_table_mapping()))
+    ni = float(base.derived["ni"][0])
+    doubled = extraction.derive(description.from_mapping(_table_mapping(material={"ni": f"{2 * ni / CM3!r} cm^-3"})))
+    v = np.array([0.3, 0.4, 0.5])
+    ratio = (dd.solve(structures.structure_for(doubled, 0), v).current
+             / dd.solve(structures.structure_for(base, 0), v).current)
+    assert np.all((ratio > 2.0) & (ratio < 4.0)) and np.all(np.diff(ratio) > 0), ratio
+    # a side's given minority mobility is the solver's mobility for that side's minority carriers there
+    table = _table_mapping()
+    table["n"] = dict(table["n"], minority_mobility="300 cm^2/(V*s)")
+    s = structures.structure_for(extraction.derive(description.from_mapping(table)), 0)
+    x_n = np.array([1.8 * UM, 3.0 * UM])  # in the n epi, beyond the junction at about 1.6 um
+    assert np.all(s.profile(x_n) > 0)
+    assert s.hole_mobility(x_n) == pytest.approx(0.03, rel=1e-12)  # 300 cm^2/(V s)
+    plain = structures.structure_for(base, 0)
+    assert s.electron_mobility(x_n) == pytest.approx(plain.electron_mobility(x_n), rel=1e-12)  # the model kept

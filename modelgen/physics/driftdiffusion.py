@@ -236,7 +236,7 @@ def structure_from_result(result, i, auger=True):
 
 
 def structure_from_profile(profile, area, temperature=300.0, lifetimes=None, velocities=(np.inf, np.inf),
-                           material=silicon, relative_permittivity=None):
+                           material=silicon, relative_permittivity=None, ni=None, mobilities=None):
     """A Structure for any profile with node-wise material models.
 
     At each point the local net doping |N_D - N_A| sets the mobilities
@@ -261,6 +261,14 @@ def structure_from_profile(profile, area, temperature=300.0, lifetimes=None, vel
     material : module
         A :mod:`modelgen.materials` module.
     relative_permittivity : float, optional
+    ni : float, optional
+        Intrinsic density [m^-3] replacing the material's (a description's
+        ``material.ni``, or the one its ``material.bandgap`` gives).
+    mobilities : dict, optional
+        Constant mobilities [m^2/(V s)] replacing the model on one side:
+        keys ``(side, role)`` with side ``"p"`` (net acceptors) or ``"n"``
+        and role ``"minority"`` or ``"majority"`` (a description's
+        ``p.minority_mobility`` and the like); NaN or absent keeps the model.
 
     Returns
     -------
@@ -277,11 +285,18 @@ def structure_from_profile(profile, area, temperature=300.0, lifetimes=None, vel
     def absn(x):
         return np.maximum(np.abs(profile(x)), 1e6)
 
+    given = {k: float(v) for k, v in (mobilities or {}).items() if np.isfinite(v)}
+
     def mobility(carrier):
         def f(x):
             c, a = profile(x), absn(x)
             major = (c > 0) if carrier == "electron" else (c < 0)
-            return np.where(major, material.majority_mobility(a, carrier, t), material.minority_mobility(a, carrier, t))
+            mu = np.where(major, material.majority_mobility(a, carrier, t), material.minority_mobility(a, carrier, t))
+            for (side, role), value in given.items():  # a side's given constant where its carrier plays that role
+                on_side = (c < 0) if side == "p" else (c >= 0)
+                plays = major if role == "majority" else ~major
+                mu = np.where(on_side & plays, value, mu)
+            return mu
         return f
 
     if lifetimes is None:
@@ -297,7 +312,7 @@ def structure_from_profile(profile, area, temperature=300.0, lifetimes=None, vel
             return np.where(profile(x) < 0, lp, ln)
 
     eps_r = material.RELATIVE_PERMITTIVITY if relative_permittivity is None else relative_permittivity
-    return Structure(profile=profile, temperature=t, ni=float(material.intrinsic_density(t)),
+    return Structure(profile=profile, temperature=t, ni=float(material.intrinsic_density(t) if ni is None else ni),
                      permittivity=float(eps_r) * EPS0, area=float(area),
                      electron_mobility=mobility("electron"), hole_mobility=mobility("hole"),
                      electron_lifetime=tau, hole_lifetime=tau,
