@@ -266,6 +266,7 @@ def header_lines(sources, against="the closed forms"):
     worst = max(float(np.max(g.worst_error)) for g in sources)
     lo = min(float(g.bias[0]) for g in sources)
     hi = min(float(g.bias[-1]) for g in sources)
+    gmin = evaluator.simulator_of("ngspice").gmin
     return (
         "subcircuit form: each card is a .subckt NAME a k holding the diode D1 and a behavioural source B1 for "
         "the depletion region's reverse generation current, which no level-1 diode carries (ngspice applies "
@@ -273,4 +274,6 @@ def header_lines(sources, against="the closed forms"):
         f"B1 = -(IG (1 - V/VJ)^MG - IE) (1 - exp(V/VG)) for V < 0, zero in forward bias; fitted from {lo:.3g} V "
         f"to {hi:.3g} V against {against}, worst error {100 * worst:.2g} %; it holds at TNOM only "
         "(no temperature scaling)",
+        f"the fit counts ngspice's default GMIN ({gmin:g} S across the junction, {gmin * abs(hi) * 1e12:.3g} pA at "
+        f"{hi:.3g} V) as part of the leakage: a run with a smaller .options gmin sees up to that much less",
     )

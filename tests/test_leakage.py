@@ -13,7 +13,7 @@ from modelgen import cards, description, extraction, leakage, structures
 from modelgen.constants import EPS0, thermal_voltage
 from modelgen.physics import driftdiffusion as dd
 from modelgen.physics import generation
-from support import EXAMPLES, need, run
+from support import EXAMPLES, ROOT, need, run
 
 #: The examples whose closed forms are exact for their profile (abrupt junctions): graded and diffused
 #: profiles are the closed forms' approximations, compared with the solver elsewhere.
@@ -295,3 +295,25 @@ def test_subckt_header_states_the_source_error_honestly(tmp_path):
     worst = np.max(np.abs(got / sw.reverse_current[use] - 1))
     assert worst <= stated + 0.005, (worst, stated)
     assert stated > 0.05  # this one the law cannot follow within 5 %: the header must say so
+
+
+def test_the_header_states_the_gmin_share_ngspice_shows(tmp_path):
+    # the source is fitted with ngspice's default GMIN counted in (1e-12 S across the junction: the ngspice
+    # manual, .options gmin); ngspice itself at -5 V with its default and with a negligible GMIN differs by
+    # that conductance times 5 V, which the header states
+    import re
+
+    need("ngspice")
+    lib = tmp_path / "sub.lib"
+    res = run("card", ROOT / "examples" / "switching_diode.toml", "--form", "subckt", "--dialect", "ngspice", "-q",
+              "-o", lib)
+    assert res.exit_code == 0, res.output
+    assert "GMIN (1e-12 S across the junction, 5 pA at -5 V)" in lib.read_text()
+    currents = []
+    for options in ("", ".options gmin=1e-25"):
+        deck = tmp_path / f"g{len(currents)}.cir"
+        deck.write_text("\n".join(["* gmin", f".include {lib}", options, "V1 k 0 dc 5", "X1 0 k DSW_DEMO",
+                                   ".control", "set numdgt=12", "op", "print i(V1)", ".endc", ".end"]) + "\n")
+        done = subprocess.run(["ngspice", "-b", str(deck)], check=False, capture_output=True, text=True, timeout=60)
+        currents.append(-float(re.findall(r"^i\(v1\)\s*=\s*(\S+)", done.stdout, re.MULTILINE)[0]))
+    assert currents[0] - currents[1] == pytest.approx(5e-12, rel=0.02)
