@@ -485,3 +485,27 @@ def test_a_scalable_card_file_is_drawn_at_the_description_geometry(tmp_path):
         assert any("subcircuit" in text for _, text in r.notes)
     finally:
         r.close()
+
+
+def test_lot_report_marks_corners_chosen_by_a_figure(lot_files):
+    # --lot-corners takes a figure as lots --corners does: the marked rows are the rows nearest those
+    # percentiles of the forward voltage each row's card gives in ngspice's equations (the
+    # spread.forward_voltage the scatter plots), ordered in it
+    js, _ = lot_files
+    r = report.build(str(js), corner_spec="VF@1mA:5,50,95")
+    try:
+        data = r.data
+        vf = lot_report.figure_column(data.columns, "VF@1mA")[0]
+        rows = [row for _, row, *_ in data.corners]
+        assert [section for section, *_ in data.corners] == ["low", "typical", "high"]
+        order = np.argsort(vf, kind="stable")
+        n = len(vf)
+        assert rows == [int(order[int(round(p / 100 * (n - 1)))]) for p in (5, 50, 95)]
+        assert vf[rows[0]] <= vf[rows[1]] <= vf[rows[2]]
+    finally:
+        r.close()
+    from modelgen.errors import InputError
+
+    with pytest.raises(InputError) as e:  # a summary has no leakage: IR corners need the lot table
+        report.build(str(js), corner_spec="IR@-1V:5,50,95")
+    assert "--lot-corners" in str(e.value)

@@ -102,6 +102,7 @@ def _table(path):
     result, _ = lots.derive(table)
     cols = dict(lots.summary_columns(result))
     cols["leakage"] = np.asarray(result.derived["leakage"], float)
+    cols["leakage_bias"] = np.asarray(result.derived["leakage_bias"], float)
     return cols, []
 
 
@@ -173,7 +174,7 @@ def _histograms(values, title):
     return fig
 
 
-def _scatter(cols, xs, ys, corner_rows, n):
+def _scatter(cols, xs, ys, corner_rows, n, by="IS"):
     (x, xu, xn), (y, yu, yn) = xs, ys
     fig, axes = new_figure()
     ax = axes[0, 0]
@@ -184,7 +185,7 @@ def _scatter(cols, xs, ys, corner_rows, n):
     line.set_markeredgecolor("#0072B2")
     line.modelgen_role = "lot"
     for (section, row, pct, *_), marker in zip(corner_rows, ("v", "D", "^")):
-        line = plot(ax, "corner", [x[row]], [y[row]], f"{section}: {cols['name'][row]} ({pct:.3g}th percentile of IS)")
+        line = plot(ax, "corner", [x[row]], [y[row]], f"{section}: {cols['name'][row]} ({pct:.3g}th percentile of {by})")
         line.set_marker(marker)
     for v, setter in ((x, ax.set_xscale), (y, ax.set_yscale)):
         f = v[np.isfinite(v)]
@@ -229,19 +230,36 @@ def report(path, *, scatter=None, corner_spec="5,50,95", dialect="ngspice", prog
     ys = (*figure_column(cols, parts[1], sim), parts[1])
     if progress:
         progress("drawing the figures")
-    chosen = lots.corner_rows(types.SimpleNamespace(params={"IS": np.asarray(cols["IS"], float)}), corner_spec)
+    figure = lots.parse_corners(corner_spec)[0]
+    by = None
+    if figure not in ("IS",):  # a figure the lot's columns give (VF@<current>, BV, TT), else the lot's "leakage"
+        column = figure
+        if figure.startswith("IR@") and "leakage" in cols:
+            from ..spread import parse_figure
+
+            if np.allclose(np.asarray(cols["leakage_bias"], float), parse_figure(figure).bias, rtol=1e-9, atol=0):
+                column = "leakage"  # the physical leakage each row was derived with, at that bias
+        try:
+            by = figure_column(cols, column, sim)[0]
+        except InputError:
+            raise InputError(f"{corner_spec!r}: the lot report places corners by IS, VF@<current>, BV or TT (and, "
+                             "given the lot table, by IR at the rows' leakage bias)", key="--lot-corners") from None
+    chosen = lots.corner_rows(types.SimpleNamespace(params={"IS": np.asarray(cols["IS"], float)},
+                                                    device=types.SimpleNamespace(name=cols["name"])),
+                              corner_spec, by)
     name = os.path.basename(str(path))
     hist = panels.Panel("histograms", "Histograms", _histograms(values, f"{name}: {n:,} devices"),
                         f"{bins_for(n)} bins each (log-spaced where a quantity spans over a decade); {DEFAULT_VF} "
                         f"is the forward voltage at 1 mA of each row's card in {sim}'s equations.")
-    fig, shown = _scatter(cols, xs, ys, chosen, n)
+    fig, shown = _scatter(cols, xs, ys, chosen, n, figure)
     sc = panels.Panel("scatter", "Scatter with the corners", fig,
                       (f"Every {n / len(shown):.3g}th row shown ({len(shown):,} of {n:,}, evenly spread through "
                        "the lot, the same on every run); " if len(shown) < n else "Every row shown; ")
-                      + f"the corners are the rows nearest the {corner_spec} percentiles of IS, as modelgen lots "
-                        "--corners picks them.")
+                      + f"the corners are the rows nearest the percentiles {corner_spec} (of IS unless a figure "
+                        "is named), as modelgen lots --corners picks them.")
     stats = lots.statistics({k: v[0] for k, v in values.items()} | {
-        k: v for k, v in cols.items() if k not in values and np.asarray(v).dtype.kind == "f" and k != "line"})
+        k: v for k, v in cols.items()
+        if k not in values and np.asarray(v).dtype.kind == "f" and k not in ("line", "leakage_bias")})
     rows = [["quantity", "unit", "count", "median", "mean", "std", "p5", "p95", "min", "max"]]
     for k, s in stats.items():
         p = s["percentiles"]
