@@ -280,8 +280,8 @@ def deviations(nominal, tolerances, rows, kind="both"):
     z = np.zeros((n, len(keys)))
     for j, key in enumerate(keys):  # over keys: each column is one vectorised expression over the samples
         entries = [t for t in drawn if t.key == key]
-        v0 = float(spread._get(nominal, key)[0])
-        v = np.asarray(spread._get(rows, key), float)
+        v0 = float(spread.key_column(nominal, key)[0])
+        v = np.asarray(spread.key_column(rows, key), float)
         sigmas = [spread.effective_sigma(tolerances, t, area) for t in entries]
         total = math.sqrt(sum(s * s for s in sigmas))
         if total == 0:

@@ -120,14 +120,14 @@ def spreadable(key):
             and not key.startswith("fit."))
 
 
-def _get(device, key):
+def key_column(device, key):
     """The column of ``device`` holding description key ``key`` (SI)."""
     if key[:2] in ("p.", "n."):
         return getattr(getattr(device, key[0]), key[2:])
     return getattr(device, _ATTRIBUTE.get(key, key))
 
 
-def _set(device, key, value):
+def with_key(device, key, value):
     """``device`` with the column of ``key`` replaced by ``value``."""
     if key[:2] in ("p.", "n."):
         side = key[0]
@@ -220,7 +220,7 @@ def parse(table, device, *, file=None):
         if not 1 <= len(items) <= 2 or not all(isinstance(x, dict) for x in items):
             raise bad("expected a table { sigma = ..., distribution = ..., shared = ... } or a list of "
                       f"one global and one local such table, got {type_name(raw)}")
-        nominal = float(_get(device, key)[0])
+        nominal = float(key_column(device, key)[0])
         if not math.isfinite(nominal):
             raise bad(f"the description gives no finite {key} to spread (give it, or spread the key it gives)")
         seen = set()
@@ -335,7 +335,7 @@ def _refuse_draw(spread, key, mask, message, values):
                      "smaller sigma", file=spread.file, row=i + 1, key=f"spread.{key}", label="sample")
 
 
-def _repeat(device, n):
+def repeated(device, n):
     """``device`` (length 1) repeated ``n`` times: what ``device.take(np.zeros(n, int))`` gives, made faster."""
     def rep(obj):
         kw = {}
@@ -410,7 +410,7 @@ def sample(device, spread, n, seed, kind="both"):
     bits = np.random.PCG64(seed)
     streams = {"global": np.random.Generator(bits), "local": np.random.Generator(bits.jumped())}
     area = float(device.area[0])
-    rows = _repeat(device, n)
+    rows = repeated(device, n)
     factor, shift = {}, {}
     draws = {}
     for t in spread.entries:  # every entry draws, used or not, so that each key's draws depend on the seed alone
@@ -425,7 +425,7 @@ def sample(device, spread, n, seed, kind="both"):
         u = draws[t]
         if kind not in ("both", t.shared):
             continue
-        nominal = float(_get(device, t.key)[0])
+        nominal = float(key_column(device, t.key)[0])
         s = effective_sigma(spread, t, area)
         if t.distribution == "lognormal":
             factor[t.key] = factor.get(t.key, 0.0) + s / nominal * u
@@ -433,12 +433,12 @@ def sample(device, spread, n, seed, kind="both"):
             step = s * u if t.distribution == "normal" else s * math.sqrt(3.0) * u
             shift[t.key] = shift.get(t.key, 0.0) + step
     for key in sorted(set(factor) | set(shift)):
-        nominal = float(_get(device, key)[0])
+        nominal = float(key_column(device, key)[0])
         value = nominal * np.exp(factor[key]) if key in factor else np.full(n, nominal)
         value = value + shift.get(key, 0.0)
         description.check_range(key, value, lambda mask, _, message, values=None, key=key:
                                 _refuse_draw(spread, key, mask, message, values))
-        rows = _set(rows, key, value)
+        rows = with_key(rows, key, value)
     return rows
 
 

@@ -115,7 +115,7 @@ def variables(device, tolerances, kind="both"):
         if t.shared == "local" and t.area_scaling:
             s = s * math.sqrt(tolerances.reference_area / area)
         if t.distribution == "lognormal":
-            s = s / float(spread._get(device, t.key)[0])
+            s = s / float(spread.key_column(device, t.key)[0])
         out.append(Variable(f"{prefix}_{t.shared[0]}_{t.key.replace('.', '_')}", t.key, t.shared,
                             t.distribution, s))
     index = {(v.key, v.shared): j for j, v in enumerate(out)}
@@ -144,7 +144,7 @@ def rows(device, variables_, x, file=None):
     """
     x = np.asarray(x, float)
     n = x.shape[0]
-    out = spread._repeat(device, n)
+    out = spread.repeated(device, n)
     factor, shift = {}, {}
     for j, v in enumerate(variables_):
         if v.distribution == "lognormal":
@@ -152,7 +152,7 @@ def rows(device, variables_, x, file=None):
         else:
             shift[v.key] = shift.get(v.key, 0.0) + v.step * x[:, j]
     for key in sorted(set(factor) | set(shift)):
-        nominal = float(spread._get(device, key)[0])
+        nominal = float(spread.key_column(device, key)[0])
         value = nominal * np.exp(factor[key]) if key in factor else np.full(n, nominal)
         value = value + shift.get(key, 0.0)
 
@@ -165,7 +165,7 @@ def rows(device, variables_, x, file=None):
                                  file=file, key=f"spread.{key}")
 
         description.check_range(key, value, refuse)
-        out = spread._set(out, key, value)
+        out = spread.with_key(out, key, value)
     return out
 
 
@@ -186,8 +186,8 @@ def values_of(device, tolerances, variables_, seed, n):
         for j, v in enumerate(variables_):
             if v.shared != shared or v.step == 0:
                 continue
-            nominal = float(spread._get(device, v.key)[0])
-            value = np.asarray(spread._get(part, v.key), float)
+            nominal = float(spread.key_column(device, v.key)[0])
+            value = np.asarray(spread.key_column(part, v.key), float)
             x[:, j] = (np.log(value / nominal) if v.distribution == "lognormal" else value - nominal) / v.step
     return x, full
 
@@ -264,9 +264,9 @@ def sensitivities(device, variables_, dialect="ngspice", file=None):
 def _figure_columns(params, temperature):
     """VF@1mA [V] and C@-1V [F] of cards given as columns (the card's own equations, ngspice's)."""
     vf = spread.forward_voltage(params, temperature, 1e-3)
-    c = evaluator._depletion(params["CJO"], params["VJ"], params["M"], params["FC"], -1.0)
+    c = evaluator.depletion_capacitance(params["CJO"], params["VJ"], params["M"], params["FC"], -1.0)
     if "CJSW" in params:
-        c = c + evaluator._depletion(params["CJSW"], params["PHP"], params["MJSW"], params["FCS"], -1.0)
+        c = c + evaluator.depletion_capacitance(params["CJSW"], params["PHP"], params["MJSW"], params["FCS"], -1.0)
     return {"VF@1mA": vf, "C@-1V": c}
 
 

@@ -242,9 +242,9 @@ def test_correlation_enters_the_propagated_variance():
                "n.lifetime": {"sigma": "15 %", "distribution": "lognormal"}}
     device, _ = device_and({})
     grid = [(1, 1), (1.01, 1), (1 / 1.01, 1), (1, 1.01), (1, 1 / 1.01)]
-    rows = spread._repeat(device, len(grid))
-    rows = spread._set(rows, "n.doping", device.n.doping[0] * np.array([g[0] for g in grid]))
-    rows = spread._set(rows, "n.lifetime", device.n.lifetime[0] * np.array([g[1] for g in grid]))
+    rows = spread.repeated(device, len(grid))
+    rows = spread.with_key(rows, "n.doping", device.n.doping[0] * np.array([g[0] for g in grid]))
+    rows = spread.with_key(rows, "n.lifetime", device.n.lifetime[0] * np.array([g[1] for g in grid]))
     ln_is = np.log(extraction.derive(rows).params["IS"])
     a = (ln_is[1] - ln_is[2]) / (2 * np.log(1.01))
     b = (ln_is[3] - ln_is[4]) / (2 * np.log(1.01))

@@ -360,7 +360,15 @@ def dc_current(card, v, simulator="ngspice", gmin=None, iterations=200, temperat
     return current(vd), vd
 
 
-def _depletion(c0, vj, m, fc, vd):
+def depletion_capacitance(c0, vj, m, fc, vd):
+    """SPICE's depletion capacitance law [F], arrays broadcast together.
+
+    C0 (1 - Vd/VJ)^-M below FC VJ, and above it the linear extension
+    C0 / (1 - FC)^(1+M) (1 - FC (1 + M) + M Vd / VJ): the SPICE2 diode model
+    (Nagel, UCB/ERL M520, 1975, from memory), as this module evaluates it for
+    the simulators it is checked against (tests/test_simulators.py).
+    Valid for any Vd; ``c0`` [F], ``vj`` and ``vd`` [V], ``m`` and ``fc`` [1].
+    """
     f2 = (1 - fc) ** (1 + m)
     f3 = 1 - fc * (1 + m)
     with np.errstate(invalid="ignore"):
@@ -380,11 +388,11 @@ def capacitance(card, v, simulator="ngspice", gmin=None, temperature_c=None):
     p = adjusted(card, temperature_c, simulator)
     i, vd = dc_current(card, v, simulator, gmin, temperature_c=temperature_c)
     _, gb = junction_current(card, vd, simulator, gmin, temperature_c)
-    c = _depletion(p["CJO"] * p["AREA"], p["VJ"], p["M"], p["FC"], vd)
+    c = depletion_capacitance(p["CJO"] * p["AREA"], p["VJ"], p["M"], p["FC"], vd)
     # gnucap 0.36 takes the perimeter only from the instance (default 0), never from the card
     sim = simulator_of(simulator)
     pj = p["PJ"] if sim.sidewall_current else 0.0
     if p["CJSW"] > 0 and pj > 0:
         fcs = p[sim.sidewall_capacitance_fc]
-        c = c + _depletion(p["CJSW"] * pj, p["PHP"], p["MJSW"], fcs, vd)
+        c = c + depletion_capacitance(p["CJSW"] * pj, p["PHP"], p["MJSW"], fcs, vd)
     return c + p["TT"] * gb
