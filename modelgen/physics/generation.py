@@ -33,8 +33,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..constants import Q, thermal_voltage
-from .recombination import _field_linear, _nodes
+from ..constants import Q
+from .recombination import _arrays, _field_linear, _nodes
 
 #: Gauss-Legendre nodes per piece: 16 gives 1e-4 against adaptive quadrature (tests).
 NODES = 16
@@ -89,15 +89,8 @@ def generation_current_density(bias, vj, na, nd, grading, linear, ni, permittivi
     Poole-Frenkel) is not included: at fields above about 3e5 V/cm it
     underestimates the leakage.
     """
-    v = np.asarray(bias, float)
-    vt = thermal_voltage(temperature)
-    linear = np.asarray(linear, bool)
-    na = np.asarray(na, float)
-    nd = np.asarray(nd, float)
-    eps = np.asarray(permittivity, float)
-    ni = np.asarray(ni, float)
-    tau_n = np.asarray(tau_n, float)
-    tau_p = np.asarray(tau_p, float)
+    v, vt, linear, na, nd, eps, ni, tau_n, tau_p = _arrays(bias, temperature, linear, na, nd, permittivity, ni,
+                                                          tau_n, tau_p)
     ok = v <= -3.0 * vt
     vd = np.asarray(vj, float) - v
     h = v / (2.0 * vt)

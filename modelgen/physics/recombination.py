@@ -71,6 +71,13 @@ def _field_linear(phi, vd, emax):
     return emax * (1.0 - s * s)
 
 
+def _arrays(bias, temperature, linear, na, nd, permittivity, ni, tau_n, tau_p):
+    """The depletion-region integrals' arguments as float arrays (``linear`` bool), with Vt [V] from the temperature."""
+    f = lambda a: np.asarray(a, float)  # noqa: E731
+    return (f(bias), thermal_voltage(temperature), np.asarray(linear, bool), f(na), f(nd), f(permittivity), f(ni),
+            f(tau_n), f(tau_p))
+
+
 def sns_current_density(bias, vj, na, nd, grading, linear, ni, permittivity, tau_n, tau_p, temperature,
                         nodes=NODES):
     """Sah-Noyce-Shockley recombination current density over the depletion region.
@@ -131,15 +138,8 @@ def sns_current_density(bias, vj, na, nd, grading, linear, ni, permittivity, tau
     Sah, Noyce & Shockley, Proc. IRE 45, 1228 (1957); Shockley & Read,
     Phys. Rev. 87, 835 (1952); Sze & Ng (2007), sec. 2.2 (depletion fields) and 2.3.
     """
-    v = np.asarray(bias, float)
-    vt = thermal_voltage(temperature)
-    linear = np.asarray(linear, bool)
-    na = np.asarray(na, float)
-    nd = np.asarray(nd, float)
-    eps = np.asarray(permittivity, float)
-    ni = np.asarray(ni, float)
-    tau_n = np.asarray(tau_n, float)
-    tau_p = np.asarray(tau_p, float)
+    v, vt, linear, na, nd, eps, ni, tau_n, tau_p = _arrays(bias, temperature, linear, na, nd, permittivity, ni,
+                                                          tau_n, tau_p)
     vd = np.asarray(vj, float) - v
     vd = np.where(vd > 0, vd, np.nan)
     span = vd / vt
