@@ -437,7 +437,8 @@ def spread_command(device_file, samples, seed, figures, kind, fmt, output, corne
 
     Draws the keys the [spread] table names (normal, lognormal or uniform;
     global lot-to-lot or local device-to-device variation, local sigma
-    scaled with 1/sqrt(area)), derives every sample in one vectorised pass,
+    scaled with 1/sqrt(area)), derives the samples vectorised (in chunks;
+    two processes from 100,000 samples, with the same numbers as one),
     and prints the statistics of each card parameter and of the figures
     asked for. A draw outside a key's physical range is an error, not
     clipped: use a lognormal distribution or a smaller sigma.
